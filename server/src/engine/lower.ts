@@ -1,0 +1,459 @@
+// Lowers a tree-sitter Python tree into the engine's ModuleIR in one pass; never throws, degrades to `unknown`/`other`.
+import type { Tree, SyntaxNode } from './parser';
+import type { Expr, Keyword, ModuleIR, Param, Span, Stmt } from './ir';
+
+/** Beyond this nesting depth subtrees become `unknown`: walks over the IR then never need deep recursion. */
+export const MAX_DEPTH = 200;
+
+export function spanOf(n: SyntaxNode): Span {
+  const s = n.startPosition;
+  const e = n.endPosition;
+  return { start: n.startIndex, end: n.endIndex, line: s.row, col: s.column, endLine: e.row, endCol: e.column };
+}
+
+class Lowerer {
+  truncated = 0;
+  readonly syntaxErrors: Span[] = [];
+
+  block(n: SyntaxNode | null, depth: number): Stmt[] {
+    if (!n) return [];
+    const out: Stmt[] = [];
+    for (const c of n.namedChildren) {
+      if (!c) continue;
+      if (c.type === 'comment') continue;
+      if (c.type === 'ERROR') {
+        this.syntaxErrors.push(spanOf(c));
+        // statements inside an ERROR node are often intact; keep what can be read
+        out.push(...this.block(c, depth + 1));
+        continue;
+      }
+      const s = this.stmt(c, depth + 1);
+      if (s) out.push(s);
+    }
+    return out;
+  }
+
+  stmt(n: SyntaxNode, depth: number): Stmt | null {
+    const span = spanOf(n);
+    if (depth > MAX_DEPTH) {
+      this.truncated++;
+      return { k: 'other', what: 'too-deep', span };
+    }
+    if (n.isMissing) this.syntaxErrors.push(span);
+    switch (n.type) {
+      case 'expression_statement': {
+        const c = n.namedChild(0);
+        if (!c) return { k: 'other', what: 'empty', span };
+        if (c.type === 'assignment') return this.assignment(c, span, depth);
+        if (c.type === 'augmented_assignment') {
+          return {
+            k: 'augassign',
+            target: this.expr(c.childForFieldName('left'), depth),
+            op: c.childForFieldName('operator')?.text ?? '?=',
+            value: this.expr(c.childForFieldName('right'), depth),
+            span,
+          };
+        }
+        if (n.namedChildCount > 1) {
+          return { k: 'expr', value: { k: 'tuple', items: n.namedChildren.map((x) => this.expr(x, depth)), span }, span };
+        }
+        return { k: 'expr', value: this.expr(c, depth), span };
+      }
+      case 'return_statement': {
+        const c = n.namedChild(0);
+        return { k: 'return', value: c ? this.expr(c, depth) : null, span };
+      }
+      case 'if_statement': {
+        const test = this.expr(n.childForFieldName('condition'), depth);
+        const body = this.block(n.childForFieldName('consequence'), depth);
+        // elif chains become nested ifs in orelse
+        const alts = n.childrenForFieldName('alternative');
+        let orelse: Stmt[] = [];
+        for (let i = alts.length - 1; i >= 0; i--) {
+          const a = alts[i];
+          if (a.type === 'else_clause') orelse = this.block(a.childForFieldName('body'), depth);
+          else if (a.type === 'elif_clause') {
+            orelse = [{
+              k: 'if',
+              test: this.expr(a.childForFieldName('condition'), depth),
+              body: this.block(a.childForFieldName('consequence'), depth),
+              orelse,
+              span: spanOf(a),
+            }];
+          }
+        }
+        return { k: 'if', test, body, orelse, span };
+      }
+      case 'for_statement': {
+        const alt = n.childForFieldName('alternative');
+        return {
+          k: 'for',
+          target: this.expr(n.childForFieldName('left'), depth),
+          iter: this.expr(n.childForFieldName('right'), depth),
+          body: this.block(n.childForFieldName('body'), depth),
+          orelse: alt ? this.block(alt.childForFieldName('body'), depth) : [],
+          span,
+        };
+      }
+      case 'while_statement': {
+        const alt = n.childForFieldName('alternative');
+        return {
+          k: 'while',
+          test: this.expr(n.childForFieldName('condition'), depth),
+          body: this.block(n.childForFieldName('body'), depth),
+          orelse: alt ? this.block(alt.childForFieldName('body'), depth) : [],
+          span,
+        };
+      }
+      case 'with_statement': {
+        const items: { ctx: Expr; target: Expr | null }[] = [];
+        const clause = n.namedChildren.find((c) => c?.type === 'with_clause');
+        for (const item of clause?.namedChildren ?? []) {
+          if (!item || item.type !== 'with_item') continue;
+          const v = item.childForFieldName('value');
+          if (v?.type === 'as_pattern') {
+            const target = v.childForFieldName('alias') ?? v.namedChildren.find((c) => c?.type === 'as_pattern_target') ?? null;
+            const inner = target?.type === 'as_pattern_target' ? target.namedChild(0) : target;
+            items.push({ ctx: this.expr(v.namedChild(0), depth), target: inner ? this.expr(inner, depth) : null });
+          } else {
+            items.push({ ctx: this.expr(v, depth), target: null });
+          }
+        }
+        return { k: 'with', items, body: this.block(n.childForFieldName('body'), depth), span };
+      }
+      case 'try_statement': {
+        const handlers: Stmt[][] = [];
+        let orelse: Stmt[] = [];
+        let finalbody: Stmt[] = [];
+        for (const c of n.namedChildren) {
+          if (!c) continue;
+          if (c.type === 'except_clause' || c.type === 'except_group_clause') {
+            const b = c.namedChildren.find((x) => x?.type === 'block') ?? null;
+            handlers.push(this.block(b, depth));
+          } else if (c.type === 'else_clause') orelse = this.block(c.childForFieldName('body'), depth);
+          else if (c.type === 'finally_clause') finalbody = this.block(c.namedChildren.find((x) => x?.type === 'block') ?? null, depth);
+        }
+        return { k: 'try', body: this.block(n.childForFieldName('body'), depth), handlers, orelse, finalbody, span };
+      }
+      case 'decorated_definition': {
+        const decorators = n.namedChildren.filter((c) => c?.type === 'decorator').map((d) => this.expr(d!.namedChild(0), depth));
+        const def = n.childForFieldName('definition');
+        const inner = def ? this.stmt(def, depth) : null;
+        if (inner && (inner.k === 'def' || inner.k === 'class')) {
+          inner.decorators = decorators;
+          return inner;
+        }
+        return inner ?? { k: 'other', what: 'decorated', span };
+      }
+      case 'function_definition': {
+        const nameNode = n.childForFieldName('name');
+        const bodyNode = n.childForFieldName('body');
+        return {
+          k: 'def',
+          name: nameNode?.text ?? '?',
+          params: this.params(n.childForFieldName('parameters'), depth),
+          decorators: [],
+          body: this.block(bodyNode, depth),
+          span,
+          nameSpan: nameNode ? spanOf(nameNode) : span,
+          bodySpan: bodyNode ? spanOf(bodyNode) : span,
+          async: n.children[0]?.type === 'async',
+        };
+      }
+      case 'class_definition': {
+        const nameNode = n.childForFieldName('name');
+        const bases: Expr[] = [];
+        const keywords: Keyword[] = [];
+        for (const a of n.childForFieldName('superclasses')?.namedChildren ?? []) {
+          if (!a || a.type === 'comment') continue;
+          if (a.type === 'keyword_argument') keywords.push(this.keyword(a, depth));
+          else bases.push(this.expr(a, depth));
+        }
+        return {
+          k: 'class',
+          name: nameNode?.text ?? '?',
+          bases,
+          keywords,
+          decorators: [],
+          body: this.block(n.childForFieldName('body'), depth),
+          span,
+          nameSpan: nameNode ? spanOf(nameNode) : span,
+        };
+      }
+      case 'import_statement': {
+        const names: { module: string; alias: string | null }[] = [];
+        for (const c of n.namedChildren) {
+          if (!c) continue;
+          if (c.type === 'dotted_name') names.push({ module: c.text, alias: null });
+          else if (c.type === 'aliased_import') {
+            names.push({ module: c.childForFieldName('name')?.text ?? '?', alias: c.childForFieldName('alias')?.text ?? null });
+          }
+        }
+        return { k: 'import', names, span };
+      }
+      case 'future_import_statement':
+        return { k: 'other', what: 'future', span };
+      case 'import_from_statement': {
+        const modNode = n.childForFieldName('module_name');
+        let module = '';
+        let level = 0;
+        if (modNode?.type === 'relative_import') {
+          for (const c of modNode.children) {
+            if (!c) continue;
+            if (c.type === 'import_prefix') level = c.text.length;
+            else if (c.type === 'dotted_name') module = c.text;
+          }
+        } else if (modNode) module = modNode.text;
+        const names: { name: string; alias: string | null }[] = [];
+        let star = false;
+        for (const c of n.childrenForFieldName('name')) {
+          if (c.type === 'dotted_name') names.push({ name: c.text, alias: null });
+          else if (c.type === 'aliased_import') {
+            names.push({ name: c.childForFieldName('name')?.text ?? '?', alias: c.childForFieldName('alias')?.text ?? null });
+          }
+        }
+        if (n.namedChildren.some((c) => c?.type === 'wildcard_import')) star = true;
+        return { k: 'from', module, level, names, star, span };
+      }
+      case 'pass_statement': return { k: 'pass', span };
+      case 'break_statement': return { k: 'break', span };
+      case 'continue_statement': return { k: 'continue', span };
+      default:
+        return { k: 'other', what: n.type, span };
+    }
+  }
+
+  assignment(c: SyntaxNode, span: Span, depth: number): Stmt {
+    // a = b = value nests as assignment(left=a, right=assignment(left=b, right=value))
+    const targets: Expr[] = [];
+    let cur: SyntaxNode | null = c;
+    while (cur && cur.type === 'assignment') {
+      const left = cur.childForFieldName('left');
+      if (left) targets.push(this.expr(left, depth));
+      const right: SyntaxNode | null = cur.childForFieldName('right');
+      if (!right) {
+        // annotation only (`x: int`): no value
+        return { k: 'other', what: 'annotation', span };
+      }
+      if (right.type !== 'assignment') {
+        return { k: 'assign', targets, value: this.expr(right, depth), span };
+      }
+      cur = right;
+    }
+    return { k: 'other', what: 'assignment', span };
+  }
+
+  params(n: SyntaxNode | null, depth: number): Param[] {
+    const out: Param[] = [];
+    let kwonly = false;
+    for (const p of n?.namedChildren ?? []) {
+      if (!p) continue;
+      const span = spanOf(p);
+      switch (p.type) {
+        case 'identifier': out.push({ name: p.text, kind: kwonly ? 'kwonly' : 'normal', default: null, span }); break;
+        case 'typed_parameter': {
+          const id = p.namedChildren.find((x) => x?.type === 'identifier');
+          const splat = p.namedChildren.find((x) => x?.type === 'list_splat_pattern' || x?.type === 'dictionary_splat_pattern');
+          if (splat) {
+            const kind = splat.type === 'list_splat_pattern' ? 'star' : 'kwstar';
+            if (kind === 'star') kwonly = true;
+            out.push({ name: splat.namedChild(0)?.text ?? '?', kind, default: null, span });
+          } else out.push({ name: id?.text ?? '?', kind: kwonly ? 'kwonly' : 'normal', default: null, span });
+          break;
+        }
+        case 'default_parameter':
+        case 'typed_default_parameter':
+          out.push({
+            name: p.childForFieldName('name')?.text ?? '?',
+            kind: kwonly ? 'kwonly' : 'normal',
+            default: this.expr(p.childForFieldName('value'), depth),
+            span,
+          });
+          break;
+        case 'list_splat_pattern': kwonly = true; out.push({ name: p.namedChild(0)?.text ?? '?', kind: 'star', default: null, span }); break;
+        case 'dictionary_splat_pattern': out.push({ name: p.namedChild(0)?.text ?? '?', kind: 'kwstar', default: null, span }); break;
+        case 'keyword_separator': kwonly = true; break;
+        default: break;
+      }
+    }
+    return out;
+  }
+
+  keyword(a: SyntaxNode, depth: number): Keyword {
+    return { name: a.childForFieldName('name')?.text ?? '?', value: this.expr(a.childForFieldName('value'), depth), span: spanOf(a) };
+  }
+
+  expr(n: SyntaxNode | null, depth: number): Expr {
+    if (!n) return { k: 'unknown', what: 'missing', span: { start: 0, end: 0, line: 0, col: 0, endLine: 0, endCol: 0 } };
+    const span = spanOf(n);
+    if (depth > MAX_DEPTH) {
+      this.truncated++;
+      return { k: 'unknown', what: 'too-deep', span };
+    }
+    const d = depth + 1;
+    switch (n.type) {
+      case 'identifier': return { k: 'name', id: n.text, span };
+      case 'attribute': {
+        const attr = n.childForFieldName('attribute');
+        return { k: 'attr', obj: this.expr(n.childForFieldName('object'), d), attr: attr?.text ?? '?', span, attrSpan: attr ? spanOf(attr) : span };
+      }
+      case 'call': {
+        const argNode = n.childForFieldName('arguments');
+        const args: Expr[] = [];
+        const kwargs: Keyword[] = [];
+        const starKwargs: Expr[] = [];
+        if (argNode?.type === 'generator_expression') args.push(this.expr(argNode, d));
+        else {
+          for (const a of argNode?.namedChildren ?? []) {
+            if (!a || a.type === 'comment') continue;
+            if (a.type === 'keyword_argument') kwargs.push(this.keyword(a, d));
+            else if (a.type === 'dictionary_splat') starKwargs.push(this.expr(a.namedChild(0), d));
+            else args.push(this.expr(a, d));
+          }
+        }
+        return { k: 'call', fn: this.expr(n.childForFieldName('function'), d), args, kwargs, starKwargs, span, argsSpan: argNode ? spanOf(argNode) : span };
+      }
+      case 'integer': {
+        const raw = n.text;
+        const clean = raw.replace(/_/g, '').replace(/[lL]$/, '');
+        const value = /^0[oO]/.test(clean) ? parseInt(clean.slice(2), 8) : /^0[bB]/.test(clean) ? parseInt(clean.slice(2), 2) : Number(clean);
+        return { k: 'num', value, raw, span };
+      }
+      case 'float': {
+        const raw = n.text;
+        return { k: 'num', value: Number(raw.replace(/_/g, '')), raw, span };
+      }
+      case 'true': return { k: 'bool', value: true, span };
+      case 'false': return { k: 'bool', value: false, span };
+      case 'none': return { k: 'none', span };
+      case 'string': return this.string(n, span);
+      case 'concatenated_string': {
+        const parts = n.namedChildren.filter((c) => c?.type === 'string').map((c) => this.string(c!, spanOf(c!)));
+        return { k: 'str', value: parts.map((p) => (p.k === 'str' ? p.value : '')).join(''), fstring: parts.some((p) => p.k === 'str' && p.fstring), span };
+      }
+      case 'parenthesized_expression': {
+        const inner = n.namedChildren.find((c) => c && c.type !== 'comment');
+        return this.expr(inner ?? null, d);
+      }
+      case 'list': case 'tuple': case 'set': case 'expression_list': case 'pattern_list': case 'tuple_pattern': case 'list_pattern': {
+        const k = n.type === 'list' || n.type === 'list_pattern' ? 'list' : n.type === 'set' ? 'set' : 'tuple';
+        return { k, items: n.namedChildren.filter((c) => c && c.type !== 'comment').map((c) => this.expr(c, d)), span };
+      }
+      case 'dictionary': {
+        const entries: { key: Expr | null; value: Expr }[] = [];
+        for (const c of n.namedChildren) {
+          if (!c) continue;
+          if (c.type === 'pair') entries.push({ key: this.expr(c.childForFieldName('key'), d), value: this.expr(c.childForFieldName('value'), d) });
+          else if (c.type === 'dictionary_splat') entries.push({ key: null, value: this.expr(c.namedChild(0), d) });
+        }
+        return { k: 'dict', entries, span };
+      }
+      case 'binary_operator':
+        return { k: 'bin', op: n.childForFieldName('operator')?.text ?? '?', left: this.expr(n.childForFieldName('left'), d), right: this.expr(n.childForFieldName('right'), d), span };
+      case 'unary_operator':
+        return { k: 'unary', op: n.childForFieldName('operator')?.text ?? '?', operand: this.expr(n.childForFieldName('argument'), d), span };
+      case 'not_operator':
+        return { k: 'unary', op: 'not', operand: this.expr(n.childForFieldName('argument'), d), span };
+      case 'boolean_operator': {
+        const op = n.childForFieldName('operator')?.text === 'or' ? 'or' : 'and';
+        return { k: 'boolop', op, left: this.expr(n.childForFieldName('left'), d), right: this.expr(n.childForFieldName('right'), d), span };
+      }
+      case 'comparison_operator': {
+        const operands: Expr[] = [];
+        const ops: string[] = [];
+        let pendingOp = '';
+        for (const c of n.children) {
+          if (!c) continue;
+          if (c.isNamed && c.type !== 'comment') {
+            if (pendingOp) ops.push(pendingOp.trim());
+            pendingOp = '';
+            operands.push(this.expr(c, d));
+          } else if (!c.isNamed) pendingOp += ` ${c.type}`;
+        }
+        return { k: 'cmp', ops, operands, span };
+      }
+      case 'subscript': {
+        const subs = n.childrenForFieldName('subscript');
+        const index = subs.length === 1 ? this.expr(subs[0], d) : { k: 'tuple' as const, items: subs.map((s) => this.expr(s, d)), span };
+        return { k: 'sub', obj: this.expr(n.childForFieldName('value'), d), index, span };
+      }
+      case 'slice': {
+        // children: [lower] ':' [upper] [':' [step]]
+        const parts: (Expr | null)[] = [null, null, null];
+        let slot = 0;
+        for (const c of n.children) {
+          if (!c) continue;
+          if (c.type === ':') slot++;
+          else if (c.isNamed) parts[slot] = this.expr(c, d);
+        }
+        return { k: 'slice', lower: parts[0], upper: parts[1], step: parts[2], span };
+      }
+      case 'list_splat': case 'list_splat_pattern':
+        return { k: 'star', value: this.expr(n.namedChild(0), d), span };
+      case 'dictionary_splat':
+        return { k: 'star', value: this.expr(n.namedChild(0), d), span };
+      case 'list_comprehension': case 'generator_expression': case 'set_comprehension': case 'dictionary_comprehension': {
+        const kind = n.type === 'list_comprehension' ? 'list' : n.type === 'set_comprehension' ? 'set' : n.type === 'dictionary_comprehension' ? 'dict' : 'gen';
+        const bodyNode = n.childForFieldName('body');
+        let elt: Expr;
+        let value: Expr | null = null;
+        if (bodyNode?.type === 'pair') {
+          elt = this.expr(bodyNode.childForFieldName('key'), d);
+          value = this.expr(bodyNode.childForFieldName('value'), d);
+        } else elt = this.expr(bodyNode, d);
+        const fors: { target: Expr; iter: Expr }[] = [];
+        const ifs: Expr[] = [];
+        for (const c of n.namedChildren) {
+          if (!c) continue;
+          if (c.type === 'for_in_clause') fors.push({ target: this.expr(c.childForFieldName('left'), d), iter: this.expr(c.childForFieldName('right'), d) });
+          else if (c.type === 'if_clause') ifs.push(this.expr(c.namedChild(0), d));
+        }
+        return { k: 'comp', kind, elt, value, fors, ifs, span };
+      }
+      case 'conditional_expression': {
+        const kids = n.namedChildren.filter((c) => c && c.type !== 'comment');
+        return { k: 'cond', body: this.expr(kids[0] ?? null, d), test: this.expr(kids[1] ?? null, d), orelse: this.expr(kids[2] ?? null, d), span };
+      }
+      case 'lambda': {
+        const ps = n.childForFieldName('parameters');
+        return { k: 'lambda', params: ps ? this.params(ps, d) : [], body: this.expr(n.childForFieldName('body'), d), span };
+      }
+      case 'named_expression':
+        return { k: 'walrus', target: n.childForFieldName('name')?.text ?? '?', value: this.expr(n.childForFieldName('value'), d), span };
+      case 'await':
+        return this.expr(n.namedChild(0), d);
+      case 'keyword_argument':
+        return this.expr(n.childForFieldName('value'), d);
+      case 'ERROR':
+        this.syntaxErrors.push(span);
+        return { k: 'unknown', what: 'error', span };
+      default:
+        return { k: 'unknown', what: n.type, span };
+    }
+  }
+
+  string(n: SyntaxNode, span: Span): Expr {
+    let fstring = false;
+    let value = '';
+    for (const c of n.children) {
+      if (!c) continue;
+      if (c.type === 'string_start') fstring = /f/i.test(c.text);
+      else if (c.type === 'string_content') value += unescape(c.text);
+      else if (c.type === 'escape_sequence') value += unescape(c.text);
+      else if (c.type === 'interpolation') fstring = true;
+    }
+    return { k: 'str', value, fstring, span };
+  }
+}
+
+function unescape(s: string): string {
+  if (!s.includes('\\')) return s;
+  return s.replace(/\\(n|t|r|\\|'|"|\n)/g, (_, ch: string) => ({ n: '\n', t: '\t', r: '\r', '\\': '\\', "'": "'", '"': '"', '\n': '' } as Record<string, string>)[ch] ?? ch);
+}
+
+/** One pass over the tree; parse errors become `syntaxErrors`, the valid parts are still lowered. */
+export function lowerModule(tree: Tree): ModuleIR {
+  const l = new Lowerer();
+  const body = l.block(tree.rootNode, 0);
+  return { body, syntaxErrors: l.syntaxErrors, truncated: l.truncated };
+}
