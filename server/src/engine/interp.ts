@@ -33,6 +33,8 @@ export interface Frame {
   done: boolean;
   depth: number;
   recorder?: FlowRecorder;
+  /** The user function whose body this frame executes (unset for module and class bodies). */
+  fn?: FuncInfo;
 }
 
 /** Observers let views see calls as the interpreter evaluates them, without a second walker. */
@@ -835,7 +837,7 @@ export class Interp {
 
   callFunction(fn: FuncInfo, self: Value | undefined, args: Value[], kwargs: Map<string, Value>, frame: Frame, _site?: CallExpr): Value {
     const scope = this.bindParams(fn, self, args, kwargs, frame);
-    const inner: Frame = { scope, path: fn.path, body: fn.stmt.body, self, cls: fn.owner, done: false, depth: frame.depth + 1, recorder: frame.recorder };
+    const inner: Frame = { scope, path: fn.path, body: fn.stmt.body, self, cls: fn.owner, done: false, depth: frame.depth + 1, recorder: frame.recorder, fn };
     this.execBody(fn.stmt.body, inner);
     return inner.returned ?? NONE;
   }
@@ -1075,17 +1077,17 @@ export class Interp {
     if (builtin) return builtin;
     const config = this.configLoad(c, args, kwargs, frame);
     if (config) return config;
+    if (frame.recorder && (c === 'torch.cat' || c === 'torch.concat' || c === 'torch.stack')) {
+      const parts = this.iterate(args[0] ?? UNKNOWN);
+      const dim = num(kwargs.get('dim') ?? args[1]);
+      if (c !== 'torch.stack' && parts && dim === 1 && parts.every((p) => isTensor(p) && p.ch !== undefined)) {
+        return freshTensor(parts.reduce((s, p) => s + ((p as { ch: number }).ch), 0), (parts[0] as { rank?: number }).rank);
+      }
+      return freshTensor();
+    }
     if (frame.recorder && args.some(isTensor)) {
       const t0 = args.find(isTensor)!;
       if (CHANNEL_PRESERVING_FUNCTIONS.has(c)) return freshTensor(t0.ch, t0.rank);
-      if (c === 'torch.cat' || c === 'torch.concat') {
-        const parts = this.iterate(args[0] ?? UNKNOWN);
-        const dim = num(kwargs.get('dim') ?? args[1]);
-        if (parts && dim === 1 && parts.every((p) => isTensor(p) && p.ch !== undefined)) {
-          return freshTensor(parts.reduce((s, p) => s + ((p as { ch: number }).ch), 0), (parts[0] as { rank?: number }).rank);
-        }
-        return freshTensor();
-      }
       return freshTensor();
     }
     if (frame.recorder && isTensor(args[0] ?? UNKNOWN)) return freshTensor();

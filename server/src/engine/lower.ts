@@ -455,5 +455,22 @@ function unescape(s: string): string {
 export function lowerModule(tree: Tree): ModuleIR {
   const l = new Lowerer();
   const body = l.block(tree.rootNode, 0);
-  return { body, syntaxErrors: l.syntaxErrors, truncated: l.truncated };
+  return { body, syntaxErrors: collectErrors(tree), truncated: l.truncated };
+}
+
+/** ERROR and MISSING nodes, found by descending only into subtrees that contain one (iterative). */
+function collectErrors(tree: Tree): Span[] {
+  const root = tree.rootNode;
+  if (!root.hasError) return [];
+  const out: Span[] = [];
+  const stack: SyntaxNode[] = [root];
+  while (stack.length && out.length < 1000) {
+    const n = stack.pop()!;
+    if (n.isError || n.isMissing) {
+      out.push(spanOf(n));
+      continue;
+    }
+    for (const c of n.children) if (c && (c.hasError || c.isMissing)) stack.push(c);
+  }
+  return out.sort((a, b) => a.start - b.start);
 }

@@ -64,8 +64,10 @@ import sys
 import traceback
 import warnings
 
-import torch
-import torch.nn as nn
+sys.dont_write_bytecode = True  # leave no __pycache__ inside samples/
+
+import torch  # noqa: E402
+import torch.nn as nn  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 REPO = os.path.abspath(os.path.join(HERE, "..", "..", ".."))

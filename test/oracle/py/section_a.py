@@ -247,7 +247,7 @@ for rate in (0.05, 0.1):
         "torch_dropped_value": dv, "closed_form_dropped_value": a * alpha_p + b,
         "kept_fraction": kf,
     }
-out["sources"]["alpha_dropout_affine"] = "Klambauer et al. 2017 §'Alpha dropout' (a, b closed form); RULES.md Grounds (values 0.95484/0.08394, 0.92128/0.16197)"
+out["sources"]["alpha_dropout_affine"] = "Klambauer et al. 2017 (alpha-dropout affine a, b closed form); RULES.md Grounds (values 0.95484/0.08394, 0.92128/0.16197)"
 
 
 # --- groupnorm-divisibility / norm-channel-mismatch / tiny batch -------------
