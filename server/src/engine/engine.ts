@@ -1,6 +1,6 @@
 // The analysis service both adapters sit on: holds the workspace, runs the rules, applies allowances and levels.
 import type { PythonParser, Tree } from './parser';
-import { FactsCache, extractFacts, type Comment } from './facts';
+import { FactsCache, extractFacts, type Comment, type FileFacts } from './facts';
 import { Workspace } from './workspace';
 import { Views } from './views';
 import { formatMessage, type Rule, type RuleContext } from './rule';
@@ -68,6 +68,15 @@ export class Engine {
   /** Adds a file whose program text and cell map the caller built (the editor's notebook documents). */
   setSource(source: SourceFile): void {
     this.ws.addFile(source, this.cache.get(source.text));
+  }
+
+  /**
+   * Adds a file whose facts were extracted elsewhere (the scanner's worker threads). The facts must be those of
+   * `source.text`; they enter the cache so a later `setFile` of the same text does not parse again.
+   */
+  setFileFacts(source: SourceFile, facts: FileFacts): void {
+    this.cache.put(facts);
+    this.ws.addFile(source, facts);
   }
 
   setDataFile(path: string, text: string): void {

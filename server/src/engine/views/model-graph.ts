@@ -1,8 +1,8 @@
 // The model-graph view: for each nn.Module subclass, its layers named as named_modules() names them, and the
 // direct feeds through forward (layer B consumes exactly the tensor layer A produced).
-import type { CallExpr, ClassStmt, Span } from '../ir';
-import { Interp, type FlowRecorder, type Frame } from '../interp';
-import type { ClassInfo, ModuleInst, Value } from '../values';
+import type { CallExpr, ClassStmt, Expr, Span } from '../ir';
+import { Interp, type CallObserver, type FlowRecorder, type Frame } from '../interp';
+import type { ClassInfo, FuncInfo, ModuleInst, Value } from '../values';
 import { UNKNOWN } from '../values';
 import type { Workspace } from '../workspace';
 import { familyOf, layerSpec, type Family } from '../torch-catalog';
@@ -18,6 +18,23 @@ export interface Layer {
   site?: { path: string; call: CallExpr };
   /** Channels and rank of the tensor it was called on in forward, where known. */
   input?: { ch?: number; rank?: number; from: Layer[] };
+}
+
+/** A call the interpreter evaluated while tracing forward (and whatever forward called), with resolved values. */
+export interface ForwardCall {
+  call: CallExpr;
+  /** File that holds the call. */
+  path: string;
+  /** The callee as the interpreter resolved it (through imports, aliases, `from ... import ... as`). */
+  callee: Value;
+  /** Canonical library name when the callee is a library object: `torch.nn.functional.dropout`. */
+  q?: string;
+  args: Value[];
+  kwargs: Map<string, Value>;
+  /** The user function whose body holds the call. */
+  fn?: FuncInfo;
+  /** The nn.Module that is `self` of that function, when it is a method of a module. */
+  self?: ModuleInst;
 }
 
 export interface ModelGraph {
@@ -37,6 +54,22 @@ export interface ModelGraph {
   /** Layers the engine could not resolve (unknown library constructors). */
   opaque: Layer[];
   byInst: Map<ModuleInst, Layer>;
+  /** Calls evaluated while tracing forward, in evaluation order (a call in an unrolled loop appears per pass). */
+  calls: ForwardCall[];
+}
+
+/**
+ * Whether argument `index` / keyword `name` of a call is given, and its expression. `maybe` when a `*args` at or
+ * before the position, or a `**kwargs`, could supply it.
+ */
+export function callArg(call: CallExpr, index: number, name: string): { given: 'yes'; expr: Expr; keyword: boolean } | { given: 'no' | 'maybe' } {
+  const kw = call.kwargs.find((k) => k.name === name);
+  if (kw) return { given: 'yes', expr: kw.value, keyword: true };
+  const starAt = call.args.findIndex((a) => a.k === 'star');
+  if (starAt >= 0 && starAt <= index) return { given: 'maybe' };
+  if (index < call.args.length) return { given: 'yes', expr: call.args[index], keyword: false };
+  if (call.starKwargs.length) return { given: 'maybe' };
+  return { given: 'no' };
 }
 
 export function isLeafLike(m: ModuleInst): boolean {
@@ -123,22 +156,36 @@ export class ModelGraphs {
     }
     // trace forward once with a fresh input tensor
     const rec: FlowRecorder = { feeds: [], inputs: new Map(), called: new Set() };
+    const calls: ForwardCall[] = [];
+    const observe: CallObserver = (call, callee, args, kwargs, fr) => {
+      if (fr.recorder !== rec) return;
+      calls.push({
+        call, path: fr.path, callee, q: callee.t === 'ext' ? callee.q : undefined, args, kwargs, fn: fr.fn,
+        self: fr.fn?.owner && fr.self?.t === 'module' ? fr.self.m : undefined,
+      });
+    };
+    this.interp.observers.push(observe);
     let traced = false;
-    const fwd = this.interp.classMember(cls, 'forward');
-    if (fwd && fwd.value.t === 'func') {
-      const ff: Frame = { ...frame, recorder: rec };
-      const params = fwd.value.fn.stmt.params.filter((p) => p.kind === 'normal').slice(1);
-      const args: Value[] = params.map((p, i) => (i === 0 || !p.default ? { t: 'tensor', from: [] } : UNKNOWN));
-      // parameters with defaults keep them (bindParams evaluates them)
-      try {
-        this.interp.callFunction(fwd.value.fn, v, args.slice(0, params.filter((p) => !p.default).length || 1), new Map(), ff);
+    try {
+      const fwd = this.interp.classMember(cls, 'forward');
+      if (fwd && fwd.value.t === 'func') {
+        const ff: Frame = { ...frame, recorder: rec };
+        const params = fwd.value.fn.stmt.params.filter((p) => p.kind === 'normal').slice(1);
+        const args: Value[] = params.map((p, i) => (i === 0 || !p.default ? { t: 'tensor', from: [] } : UNKNOWN));
+        // parameters with defaults keep them (bindParams evaluates them)
+        try {
+          this.interp.callFunction(fwd.value.fn, v, args.slice(0, params.filter((p) => !p.default).length || 1), new Map(), ff);
+          traced = true;
+        } catch {
+          traced = false;
+        }
+      } else if (root.kind === 'user' && root.cls && this.interp.externalBases(root.cls).includes('torch.nn.Sequential')) {
+        this.interp.call({ t: 'module', m: root }, [{ t: 'tensor', from: [] }], new Map(), { ...frame, recorder: rec });
         traced = true;
-      } catch {
-        traced = false;
       }
-    } else if (root.kind === 'user' && root.cls && this.interp.externalBases(root.cls).includes('torch.nn.Sequential')) {
-      this.interp.call({ t: 'module', m: root }, [{ t: 'tensor', from: [] }], new Map(), { ...frame, recorder: rec });
-      traced = true;
+    } finally {
+      const at = this.interp.observers.indexOf(observe);
+      if (at >= 0) this.interp.observers.splice(at, 1);
     }
     const flow: [Layer, Layer][] = [];
     const seenPair = new Set<string>();
@@ -156,7 +203,7 @@ export class ModelGraphs {
       if (l) l.input = { ch: t.ch, rank: t.rank, from: t.from.map((f) => byInst.get(f)).filter((x): x is Layer => !!x) };
     }
     const opaque = layers.filter((l) => l.inst.kind === 'opaque' || (l.inst.kind === 'leaf' && !layerSpec(l.type) && l.family === 'other' && !l.type.startsWith('torch.nn.')));
-    return { cls, path: cls.path, className: cls.name, classSpan: cls.stmt.nameSpan, root, layers, modules, flow, traced, opaque, byInst };
+    return { cls, path: cls.path, className: cls.name, classSpan: cls.stmt.nameSpan, root, layers, modules, flow, traced, opaque, byInst, calls };
   }
 
   /** Layers fed directly by `l`, and those feeding it. */
