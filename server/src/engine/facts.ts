@@ -52,7 +52,7 @@ export function contentHash(text: string): string {
 /** Extracts facts from text (parsing it), or from a given tree (the editor's incremental tree). */
 export function extractFacts(parser: PythonParser, text: string, tree?: Tree): FileFacts {
   const t = tree ?? parser.parse(text);
-  const ir = lowerModule(t);
+  const ir = lowerModule(t, text);
   const imports: ImportFact[] = [];
   const classes: ClassStmt[] = [];
   const functions: DefStmt[] = [];

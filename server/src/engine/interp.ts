@@ -6,7 +6,7 @@ import { walkStmts } from './ir';
 import type { Workspace } from './workspace';
 import { loadConfig } from './configs';
 import {
-  CHANNEL_PRESERVING, CHANNEL_PRESERVING_FUNCTIONS, CONTAINERS, canonical, familyOf, isTorchLayerClass, layerSpec,
+  CHANNEL_PRESERVING, CHANNEL_PRESERVING_FUNCTIONS, CONTAINERS, canonical, familyOf, isKnownTorchClass, isTorchLayerClass, isTorchSubclass, layerSpec,
 } from './torch-catalog';
 import { NONE, UNKNOWN, num, str, truthy, type ClassInfo, type FuncInfo, type ModuleInst, type Scope, type Value } from './values';
 
@@ -231,6 +231,28 @@ export class Interp {
   isTorchModuleClass(cls: ClassInfo): boolean {
     return this.externalBases(cls).some((q) => q === 'torch.nn.Module' || CONTAINERS.has(q) || isTorchLayerClass(q) ||
       q === 'lightning.LightningModule' || q === 'pytorch_lightning.LightningModule' || q === 'lightning.pytorch.LightningModule');
+  }
+
+  /** `isinstance(m, cls)` for a module the interpreter built; undefined when it cannot tell. */
+  moduleIsInstance(m: ModuleInst, cls: Value): boolean | undefined {
+    if (cls.t === 'ext') {
+      if (m.kind === 'leaf' || m.kind === 'sequential' || m.kind === 'modulelist' || m.kind === 'moduledict') return isTorchSubclass(m.type, cls.q);
+      if (m.kind === 'user' && m.cls) {
+        const ext = this.externalBases(m.cls);
+        if (ext.some((q) => isTorchSubclass(q, cls.q) === true)) return true;
+        // a plain nn.Module subclass is no library layer
+        return ext.every((q) => q === 'torch.nn.Module') && isKnownTorchClass(cls.q) ? false : undefined;
+      }
+      return undefined;
+    }
+    if (cls.t === 'class') {
+      if (m.kind === 'user' && m.cls) {
+        if (this.mro(m.cls).includes(cls.cls)) return true;
+        return this.bases(m.cls).every((b) => b.t === 'ext' || b.t === 'class') ? false : undefined;
+      }
+      return m.kind === 'leaf' && layerSpec(m.type) ? false : undefined;
+    }
+    return undefined;
   }
 
   /** A method (or class attribute) found along the MRO. */
@@ -962,6 +984,15 @@ export class Interp {
       }
       if ((method === 'children' || method === 'values') && m.kind !== 'leaf') return { t: 'list', items: m.children.map(([, c]) => ({ t: 'module', m: c })), tuple: false };
       if (method === 'items' && m.kind === 'moduledict') return { t: 'list', items: m.children.map(([n, c]) => ({ t: 'list', items: [{ t: 'str', v: n }, { t: 'module', m: c }], tuple: true })), tuple: false };
+      // init loops (`for m in self.modules()`, `self.apply(fn)`) see the modules registered so far, as at runtime
+      if (method === 'modules') return { t: 'list', items: subtree(m).map(([, x]) => ({ t: 'module', m: x })), tuple: false };
+      if (method === 'named_modules') return { t: 'list', items: subtree(m).map(([n, x]) => ({ t: 'list', items: [{ t: 'str', v: n }, { t: 'module', m: x }], tuple: true })), tuple: false };
+      if (method === 'named_children') return { t: 'list', items: m.children.map(([n, c]) => ({ t: 'list', items: [{ t: 'str', v: n }, { t: 'module', m: c }], tuple: true })), tuple: false };
+      if (method === 'apply' && args[0]) {
+        // nn.Module.apply: children first, then the module itself
+        for (const [, x] of subtree(m).reverse()) this.call(args[0], [{ t: 'module', m: x }], new Map(), frame);
+        return bound;
+      }
       if (method === 'forward' && frame.recorder) return this.callModule(m, args, kwargs, frame);
       if (method === 'train' || method === 'eval' || method === 'to' || method === 'cuda' || method === 'cpu' || method === 'float' || method === 'double' || method === 'half' || method === 'requires_grad_') return bound;
       return UNKNOWN;
@@ -1199,7 +1230,14 @@ export class Interp {
         }
         return UNKNOWN;
       }
-      case 'builtins.isinstance': case 'builtins.hasattr': case 'builtins.print': case 'builtins.callable':
+      case 'builtins.isinstance': {
+        if (a0?.t !== 'module' || !args[1]) return UNKNOWN;
+        const classes = args[1].t === 'list' ? args[1].items : [args[1]];
+        const answers = classes.map((k) => this.moduleIsInstance(a0.m, k));
+        if (answers.includes(true)) return { t: 'bool', v: true };
+        return answers.every((x) => x === false) ? { t: 'bool', v: false } : UNKNOWN;
+      }
+      case 'builtins.hasattr': case 'builtins.print': case 'builtins.callable':
         return c === 'builtins.print' ? NONE : UNKNOWN;
       case 'builtins.open': return { t: 'obj', q: 'builtins.open', args, kwargs, state: new Map() };
       case 'builtins.vars': return a0?.t === 'obj' && a0.q === 'argparse.Namespace' ? { t: 'dict', map: new Map(a0.state) } : UNKNOWN;
@@ -1281,6 +1319,20 @@ function destructure(target: Expr, v: Value, name: string): Value | undefined {
     for (const t of target.items) if (destructure(t, UNKNOWN, name)) return UNKNOWN;
   }
   return undefined;
+}
+
+/** The module and its descendants with qualified names, pre-order, each once (as `named_modules()`). */
+function subtree(root: ModuleInst): [string, ModuleInst][] {
+  const out: [string, ModuleInst][] = [];
+  const seen = new Set<ModuleInst>();
+  const visit = (name: string, m: ModuleInst) => {
+    if (seen.has(m)) return;
+    seen.add(m);
+    out.push([name, m]);
+    for (const [n, c] of m.children) visit(name ? `${name}.${n}` : n, c);
+  };
+  visit('', root);
+  return out;
 }
 
 function registerChild(m: ModuleInst, name: string, child: ModuleInst): void {

@@ -14,6 +14,34 @@ export function spanOf(n: SyntaxNode): Span {
 class Lowerer {
   truncated = 0;
   readonly syntaxErrors: Span[] = [];
+  /** Offsets where each line starts: line/column come from offsets in JS, saving two WASM calls per node. */
+  private readonly lineStarts: number[];
+
+  constructor(text: string) {
+    const starts = [0];
+    for (let i = text.indexOf('\n'); i !== -1; i = text.indexOf('\n', i + 1)) starts.push(i + 1);
+    this.lineStarts = starts;
+  }
+
+  private lineOf(offset: number): number {
+    const s = this.lineStarts;
+    let lo = 0;
+    let hi = s.length - 1;
+    while (lo < hi) {
+      const mid = (lo + hi + 1) >> 1;
+      if (s[mid] <= offset) lo = mid;
+      else hi = mid - 1;
+    }
+    return lo;
+  }
+
+  span(n: SyntaxNode): Span {
+    const start = n.startIndex;
+    const end = n.endIndex;
+    const line = this.lineOf(start);
+    const endLine = end === start ? line : this.lineOf(end);
+    return { start, end, line, col: start - this.lineStarts[line], endLine, endCol: end - this.lineStarts[endLine] };
+  }
 
   block(n: SyntaxNode | null, depth: number): Stmt[] {
     if (!n) return [];
@@ -22,7 +50,7 @@ class Lowerer {
       if (!c) continue;
       if (c.type === 'comment') continue;
       if (c.type === 'ERROR') {
-        this.syntaxErrors.push(spanOf(c));
+        this.syntaxErrors.push(this.span(c));
         // statements inside an ERROR node are often intact; keep what can be read
         out.push(...this.block(c, depth + 1));
         continue;
@@ -34,7 +62,7 @@ class Lowerer {
   }
 
   stmt(n: SyntaxNode, depth: number): Stmt | null {
-    const span = spanOf(n);
+    const span = this.span(n);
     if (depth > MAX_DEPTH) {
       this.truncated++;
       return { k: 'other', what: 'too-deep', span };
@@ -78,7 +106,7 @@ class Lowerer {
               test: this.expr(a.childForFieldName('condition'), depth),
               body: this.block(a.childForFieldName('consequence'), depth),
               orelse,
-              span: spanOf(a),
+              span: this.span(a),
             }];
           }
         }
@@ -155,8 +183,8 @@ class Lowerer {
           decorators: [],
           body: this.block(bodyNode, depth),
           span,
-          nameSpan: nameNode ? spanOf(nameNode) : span,
-          bodySpan: bodyNode ? spanOf(bodyNode) : span,
+          nameSpan: nameNode ? this.span(nameNode) : span,
+          bodySpan: bodyNode ? this.span(bodyNode) : span,
           async: n.children[0]?.type === 'async',
         };
       }
@@ -177,7 +205,7 @@ class Lowerer {
           decorators: [],
           body: this.block(n.childForFieldName('body'), depth),
           span,
-          nameSpan: nameNode ? spanOf(nameNode) : span,
+          nameSpan: nameNode ? this.span(nameNode) : span,
         };
       }
       case 'import_statement': {
@@ -248,7 +276,7 @@ class Lowerer {
     let kwonly = false;
     for (const p of n?.namedChildren ?? []) {
       if (!p) continue;
-      const span = spanOf(p);
+      const span = this.span(p);
       switch (p.type) {
         case 'identifier': out.push({ name: p.text, kind: kwonly ? 'kwonly' : 'normal', default: null, span }); break;
         case 'typed_parameter': {
@@ -280,12 +308,12 @@ class Lowerer {
   }
 
   keyword(a: SyntaxNode, depth: number): Keyword {
-    return { name: a.childForFieldName('name')?.text ?? '?', value: this.expr(a.childForFieldName('value'), depth), span: spanOf(a) };
+    return { name: a.childForFieldName('name')?.text ?? '?', value: this.expr(a.childForFieldName('value'), depth), span: this.span(a) };
   }
 
   expr(n: SyntaxNode | null, depth: number): Expr {
     if (!n) return { k: 'unknown', what: 'missing', span: { start: 0, end: 0, line: 0, col: 0, endLine: 0, endCol: 0 } };
-    const span = spanOf(n);
+    const span = this.span(n);
     if (depth > MAX_DEPTH) {
       this.truncated++;
       return { k: 'unknown', what: 'too-deep', span };
@@ -295,7 +323,7 @@ class Lowerer {
       case 'identifier': return { k: 'name', id: n.text, span };
       case 'attribute': {
         const attr = n.childForFieldName('attribute');
-        return { k: 'attr', obj: this.expr(n.childForFieldName('object'), d), attr: attr?.text ?? '?', span, attrSpan: attr ? spanOf(attr) : span };
+        return { k: 'attr', obj: this.expr(n.childForFieldName('object'), d), attr: attr?.text ?? '?', span, attrSpan: attr ? this.span(attr) : span };
       }
       case 'call': {
         const argNode = n.childForFieldName('arguments');
@@ -311,7 +339,7 @@ class Lowerer {
             else args.push(this.expr(a, d));
           }
         }
-        return { k: 'call', fn: this.expr(n.childForFieldName('function'), d), args, kwargs, starKwargs, span, argsSpan: argNode ? spanOf(argNode) : span };
+        return { k: 'call', fn: this.expr(n.childForFieldName('function'), d), args, kwargs, starKwargs, span, argsSpan: argNode ? this.span(argNode) : span };
       }
       case 'integer': {
         const raw = n.text;
@@ -328,7 +356,7 @@ class Lowerer {
       case 'none': return { k: 'none', span };
       case 'string': return this.string(n, span);
       case 'concatenated_string': {
-        const parts = n.namedChildren.filter((c) => c?.type === 'string').map((c) => this.string(c!, spanOf(c!)));
+        const parts = n.namedChildren.filter((c) => c?.type === 'string').map((c) => this.string(c!, this.span(c!)));
         return { k: 'str', value: parts.map((p) => (p.k === 'str' ? p.value : '')).join(''), fstring: parts.some((p) => p.k === 'str' && p.fstring), span };
       }
       case 'parenthesized_expression': {
@@ -452,8 +480,8 @@ function unescape(s: string): string {
 }
 
 /** One pass over the tree; parse errors become `syntaxErrors`, the valid parts are still lowered. */
-export function lowerModule(tree: Tree): ModuleIR {
-  const l = new Lowerer();
+export function lowerModule(tree: Tree, text: string = tree.rootNode.text): ModuleIR {
+  const l = new Lowerer(text);
   const body = l.block(tree.rootNode, 0);
   return { body, syntaxErrors: collectErrors(tree), truncated: l.truncated };
 }

@@ -121,3 +121,36 @@ export function isKnownCaringConstructor(q: string): boolean {
   return /^torchvision\.models\.(resnet|resnext|wide_resnet|vgg\d+_bn|densenet|mobilenet|efficientnet|regnet|convnext|inception|googlenet|shufflenet|mnasnet|squeezenet|alexnet|vit_|swin_|maxvit)/.test(q) ||
     /^torchvision\.models\.(segmentation|detection)\./.test(q);
 }
+
+/** torch.nn's private base classes that `isinstance` checks name, by the families of their public subclasses. */
+const PRIVATE_BASES: Record<string, ReadonlySet<Family>> = {
+  'torch.nn._NormBase': new Set(['batchnorm', 'syncbatchnorm', 'instancenorm']),
+  'torch.nn._BatchNorm': new Set(['batchnorm', 'syncbatchnorm']),
+  'torch.nn._InstanceNorm': new Set(['instancenorm']),
+  'torch.nn._ConvNd': new Set(['conv', 'convtranspose']),
+  'torch.nn._ConvTransposeNd': new Set(['convtranspose']),
+  'torch.nn._DropoutNd': new Set(['dropout', 'alphadropout']),
+};
+
+/**
+ * Whether torch.nn class `type` is `base` or a subclass of it (torch/nn/modules/*.py class statements):
+ * undefined when either class is one the catalog does not describe.
+ */
+export function isTorchSubclass(type: string, base: string): boolean | undefined {
+  const t = canonical(type);
+  const b = canonical(base);
+  if (t === b || b === 'torch.nn.Module') return true;
+  const spec = byType.get(t);
+  if (!spec) return CONTAINERS.has(t) && isKnownTorchClass(b) ? false : undefined;
+  // LazyLinear(LazyModuleMixin, Linear) and LazyConv2d(..., Conv2d) subclass their eager class; LazyBatchNorm2d does not
+  if (t.startsWith('torch.nn.Lazy') && spec.family !== 'batchnorm' && b === `torch.nn.${t.slice('torch.nn.Lazy'.length)}`) return true;
+  const priv = PRIVATE_BASES[b];
+  if (priv) return priv.has(spec.family);
+  return isKnownTorchClass(b) ? false : undefined;
+}
+
+/** A torch.nn class the catalog describes (layer, container, or private base). */
+export function isKnownTorchClass(q: string): boolean {
+  const c = canonical(q);
+  return byType.has(c) || CONTAINERS.has(c) || c in PRIVATE_BASES;
+}
