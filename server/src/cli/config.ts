@@ -156,7 +156,9 @@ export function nearest(got: string, valid: readonly string[]): string | undefin
       best = v;
     }
   }
-  return best !== undefined && bestD <= Math.max(2, Math.floor(best.length / 3)) ? best : undefined;
+  if (best !== undefined && bestD <= Math.max(2, Math.floor(best.length / 3))) return best;
+  // an abbreviation (`warn` for `warning`) is as plausible as a typo
+  return got.length >= 3 ? valid.find((v) => v.toLowerCase().startsWith(got.toLowerCase())) : undefined;
 }
 
 export function editDistance(a: string, b: string): number {

@@ -155,12 +155,19 @@ export function walk(roots: string[], filter?: WalkFilter): string[] {
   };
   for (let ri = 0; ri < roots.length; ri++) {
     const top = path.resolve(roots[ri]);
-    const stack: { p: string; explicit: boolean }[] = [{ p: top, explicit: true }];
-    while (stack.length) {
-      const { p: cur, explicit } = stack.pop()!;
+    const stack: { p: string; explicit: boolean; link?: boolean }[] = [{ p: top, explicit: true }];
+    // links wait until the real files are seen, so a file reached both ways is reported under its own path
+    const deferred: { p: string; explicit: boolean; link?: boolean }[] = [];
+    while (stack.length || deferred.length) {
+      if (!stack.length) stack.push(...deferred.splice(0).reverse());
+      const { p: cur, explicit, link } = stack.pop()!;
       let real: string;
       let st: fs.Stats;
       try {
+        if (!explicit && !link && fs.lstatSync(cur).isSymbolicLink()) {
+          deferred.push({ p: cur, explicit, link: true });
+          continue;
+        }
         real = fs.realpathSync(cur);
         st = fs.statSync(real);
       } catch {

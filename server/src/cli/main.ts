@@ -5,29 +5,65 @@ import { loadPythonParser } from '../engine/parser';
 import { Engine } from '../engine/engine';
 import { Views } from '../engine/views';
 import { show } from '../engine/values';
-import { toCell } from '../engine/source';
-import type { Finding } from '../engine/types';
+import { INTERNAL_RULE, compareFindings } from '../engine/engine';
+import { LEVEL_RANK, type Finding, type FixKind } from '../engine/types';
 import { RULES, ruleById } from '../../../rules/index';
-import { loadTree } from './load';
+import { collect, loadTree, sourceOf, walk, type Collected } from './load';
+import { ConfigError, defaultConfig, discoverConfig, engineOptions, loadConfig, nearest, type ScanConfig } from './config';
+import { Baseline, BaselineError, baselinePath, writeBaseline } from './baseline';
+import { changedSince, GitError } from './git';
+import { fingerprints } from './fingerprint';
+import { applyFixesToFiles } from './fixer';
+import { defaultJobs, extractInWorkers, workerScript } from './pool';
+import { Progress } from './progress';
+import { displayPath, jsonReport, summarize, toReportFinding, type Report } from './report';
+import { sarifReport } from './sarif';
+import { chooseStyle, textReport } from './text';
 import { VERSION } from './version';
 
 export class UsageError extends Error {}
 
-interface Io {
+export interface Io {
   out: (s: string) => void;
   err: (s: string) => void;
+  /** Whether stdout / stderr are terminals (colour, progress bar). */
+  outTty?: boolean;
+  errTty?: boolean;
+  errColumns?: number;
+  env?: NodeJS.ProcessEnv;
 }
 
 const HELP = `regwise ${VERSION}: static checks for regularization and normalization mistakes in deep-learning code
 
 usage:
-  regwise scan [PATH...] [--format text|json|sarif] [--output FILE] [--fail-level error|warning|info|never]
+  regwise scan [PATH...]       scan .py and .ipynb files (default: the current folder)
+      --format text|json|sarif     report format (default text)
+      --output FILE                write the report to FILE instead of stdout
+      --fail-level LEVEL           error|warning|info|never: exit 1 when a finding is at or above it (default warning)
+      --fix                        apply safe fixes to the files
+      --fix-suggested              also apply suggested fixes
+      --baseline FILE              do not report findings recorded in FILE
+      --write-baseline FILE        record the current findings in FILE
+      --changed-since GITREF       report only files changed since GITREF (all files are still analysed)
+      --config FILE                use this regwise.toml / pyproject.toml instead of looking for one
+      --jobs N                     worker threads for parsing (default: number of cores)
   regwise model FILE[:CLASS] [--format text|json]
   regwise rules
   regwise explain RULE
+
+exit codes: 0 no finding at or above --fail-level, 1 findings at or above it, 2 usage, config or internal error
 `;
 
-export async function main(argv: string[], io: Io = { out: (s) => process.stdout.write(s), err: (s) => process.stderr.write(s) }): Promise<number> {
+const defaultIo = (): Io => ({
+  out: (s) => process.stdout.write(s),
+  err: (s) => process.stderr.write(s),
+  outTty: process.stdout.isTTY,
+  errTty: process.stderr.isTTY,
+  errColumns: process.stderr.columns,
+  env: process.env,
+});
+
+export async function main(argv: string[], io: Io = defaultIo()): Promise<number> {
   const [cmd, ...rest] = argv;
   try {
     switch (cmd) {
@@ -42,6 +78,10 @@ export async function main(argv: string[], io: Io = { out: (s) => process.stdout
   } catch (err) {
     if (err instanceof UsageError) {
       io.err(`regwise: ${err.message}\n\n${HELP}`);
+      return 2;
+    }
+    if (err instanceof ConfigError || err instanceof BaselineError || err instanceof GitError) {
+      io.err(`regwise: ${err.message}\n`);
       return 2;
     }
     io.err(`regwise: internal error: ${err instanceof Error ? err.stack ?? err.message : String(err)}\n`);
@@ -59,14 +99,23 @@ function parseFlags(args: string[], valued: string[], switches: string[]): Flags
   const f: Flags = { positional: [], values: new Map(), switches: new Set() };
   for (let i = 0; i < args.length; i++) {
     const a = args[i];
+    if (a === '--') {
+      f.positional.push(...args.slice(i + 1));
+      break;
+    }
     if (a.startsWith('--')) {
       const [name, inline] = a.slice(2).split(/=(.*)/s, 2);
       if (valued.includes(name)) {
         const v = inline ?? args[++i];
         if (v === undefined) throw new UsageError(`--${name} needs a value`);
         f.values.set(name, v);
-      } else if (switches.includes(name)) f.switches.add(name);
-      else throw new UsageError(`unknown option --${name}`);
+      } else if (switches.includes(name)) {
+        if (inline !== undefined) throw new UsageError(`--${name} takes no value`);
+        f.switches.add(name);
+      } else {
+        const near = nearest(name, [...valued, ...switches]);
+        throw new UsageError(`unknown option --${name}${near ? ` (did you mean --${near}?)` : ''}`);
+      }
     } else f.positional.push(a);
   }
   return f;
@@ -82,61 +131,136 @@ export async function newEngine(): Promise<Engine> {
   return new Engine(await loadPythonParser(), RULES);
 }
 
-/** Paths in reports are as given on the command line: relative to the current folder. */
-function displayPath(root: string, rel: string): string {
-  return path.relative(process.cwd(), path.join(root, rel)).split(path.sep).join('/') || rel;
+const FAIL_RANK: Record<string, number> = { error: LEVEL_RANK.error, warning: LEVEL_RANK.warning, info: LEVEL_RANK.info, never: Infinity };
+
+/** The config in force: `--config FILE`, else the nearest regwise.toml / [tool.regwise] above the first path. */
+function resolveConfig(explicit: string | undefined, firstRoot: string): ScanConfig {
+  const ids = RULES.map((r) => r.meta.id);
+  if (explicit) {
+    if (!fs.existsSync(explicit)) throw new UsageError(`--config: no such file: ${explicit}`);
+    return loadConfig(explicit, ids, explicit);
+  }
+  const found = discoverConfig(firstRoot);
+  if (!found) return defaultConfig(process.cwd());
+  return loadConfig(found, ids, path.relative(process.cwd(), found) || found);
+}
+
+/** Reads sources into the engine: facts come from worker threads when `jobs` > 1 and the bundled worker exists. */
+async function loadSources(engine: Engine, c: Collected, jobs: number, progress: Progress): Promise<number> {
+  for (const d of c.data) engine.setDataFile(d.rel, d.text);
+  const sources = c.sources.map(sourceOf);
+  const script = workerScript();
+  if (jobs > 1 && script && sources.length > 1) {
+    const facts = await extractInWorkers(sources.map((s) => s.text), jobs, script, (done) => progress.update('parsing', done, sources.length));
+    sources.forEach((s, i) => engine.setFileFacts(s, facts[i]));
+    return Math.min(jobs, sources.length);
+  }
+  sources.forEach((s, i) => {
+    engine.setSource(s);
+    progress.update('parsing', i + 1, sources.length);
+  });
+  return 0;
+}
+
+/** Runs the rules file by file (for progress) with one shared Views; same dedupe and order as one analyze call. */
+function analyzeAll(engine: Engine, paths: readonly string[], progress: Progress): Finding[] {
+  const views = new Views(engine.ws);
+  const seen = new Set<string>();
+  const out: Finding[] = [];
+  paths.forEach((p, i) => {
+    for (const f of engine.analyze([p], views)) {
+      const key = `${f.rule}\0${f.path}\0${f.span.start}\0${f.span.end}\0${f.messageId}`;
+      if (seen.has(key)) continue;
+      seen.add(key);
+      out.push(f);
+    }
+    progress.update('analysing', i + 1, paths.length);
+  });
+  return out.sort(compareFindings);
 }
 
 async function scan(args: string[], io: Io): Promise<number> {
-  const flags = parseFlags(args, ['format', 'output', 'fail-level'], []);
-  const format = choice(flags.values.get('format'), ['text', 'json'], 'format', 'text');
+  const started = Date.now();
+  const flags = parseFlags(args, ['format', 'output', 'fail-level', 'baseline', 'write-baseline', 'changed-since', 'config', 'jobs'], ['fix', 'fix-suggested']);
+  const format = choice(flags.values.get('format'), ['text', 'json', 'sarif'], 'format', 'text');
   const failLevel = choice(flags.values.get('fail-level'), ['error', 'warning', 'info', 'never'], 'fail-level', 'warning');
+  const jobsFlag = flags.values.get('jobs');
+  if (jobsFlag !== undefined && !/^[1-9]\d*$/.test(jobsFlag)) throw new UsageError(`--jobs must be a positive whole number (got '${jobsFlag}')`);
+  const jobs = jobsFlag ? Math.min(64, Number(jobsFlag)) : defaultJobs();
+  const fixKind: FixKind | undefined = flags.switches.has('fix-suggested') ? 'suggested' : flags.switches.has('fix') ? 'safe' : undefined;
   const roots = flags.positional.length ? flags.positional : ['.'];
   for (const r of roots) if (!fs.existsSync(r)) throw new UsageError(`no such file or folder: ${r}`);
+  const env = io.env ?? {};
+  const progress = new Progress({ isTTY: io.errTty, columns: io.errColumns, write: io.err }, env);
+
+  const cfg = resolveConfig(flags.values.get('config'), roots[0]);
+  const baseline = flags.values.has('baseline') ? Baseline.read(flags.values.get('baseline')!) : undefined;
+  const changed = flags.values.has('changed-since') ? changedSince(process.cwd(), flags.values.get('changed-since')!) : undefined;
+
   const engine = await newEngine();
+  engine.configure(engineOptions(cfg));
   const root = process.cwd();
-  const tree = loadTree(engine, root, roots);
-  const findings = engine.analyze(tree.sources);
-  for (const s of tree.skipped) io.err(`regwise: skipped ${s.path}: ${s.reason}\n`);
-  const report = format === 'json' ? jsonReport(engine, root, findings) : textReport(engine, root, findings);
+  const collected = collect(root, walk(roots, { dir: cfg.dir, include: cfg.include, exclude: cfg.exclude }));
+  const tRead = Date.now();
+  const workers = await loadSources(engine, collected, jobs, progress);
+  const paths = collected.sources.map((s) => s.rel);
+  const tFacts = Date.now();
+  let findings = analyzeAll(engine, paths, progress);
+  const tRules = Date.now();
+  progress.done();
+  for (const s of collected.skipped) io.err(`regwise: skipped ${s.path}: ${s.reason}\n`);
+
+  const inChanged = (rel: string) => !changed || changed.has(path.resolve(root, rel));
+  if (fixKind) {
+    const targets = collected.sources.filter((s) => inChanged(s.rel));
+    const outcome = applyFixesToFiles(engine, targets, findings, fixKind);
+    for (const a of outcome.applied) io.err(`regwise: fixed ${displayPath(root, a.path)}:${a.cell !== undefined ? `cell ${a.cell}:` : ''}${a.line} ${a.rule}: ${a.title}\n`);
+    for (const r of outcome.refused) io.err(`regwise: not fixed ${displayPath(root, r.path)}: ${r.reason}\n`);
+    io.err(`regwise: ${outcome.applied.length} fix${outcome.applied.length === 1 ? '' : 'es'} applied in ${outcome.changed.length} file${outcome.changed.length === 1 ? '' : 's'}\n`);
+    if (outcome.changed.length) findings = analyzeAll(engine, paths, progress);
+  }
+  if (changed) findings = findings.filter((f) => inChanged(f.path));
+
+  const textOf = (p: string) => engine.ws.get(p)?.source.text ?? '';
+  const prints = fingerprints(findings, textOf, (p) => displayPath(root, p));
+  const entryOf = (f: Finding, i: number, file: string) => ({ rule: f.rule, path: baselinePath(file, path.resolve(root, f.path)), hash: prints[i].code });
+  const writeTo = flags.values.get('write-baseline');
+  if (writeTo) {
+    const entries = findings.map((f, i) => ({ f, i })).filter(({ f }) => f.rule !== INTERNAL_RULE).map(({ f, i }) => entryOf(f, i, writeTo));
+    writeBaseline(writeTo, entries);
+    io.err(`regwise: wrote ${entries.length} finding${entries.length === 1 ? '' : 's'} to the baseline ${writeTo}\n`);
+  }
+  let kept = findings.map((f, i) => ({ f, i }));
+  let baselined = 0;
+  if (baseline) {
+    const file = flags.values.get('baseline')!;
+    kept = kept.filter(({ f, i }) => {
+      if (f.rule === INTERNAL_RULE || !baseline.take(entryOf(f, i, file))) return true;
+      baselined++;
+      return false;
+    });
+  }
+  if (writeTo) {
+    // what was just recorded is known from now on: this run passes unless something could not be recorded
+    baselined += kept.filter(({ f }) => f.rule !== INTERNAL_RULE).length;
+    kept = kept.filter(({ f }) => f.rule === INTERNAL_RULE);
+  }
+  const shown = kept.map(({ f }) => f);
+  const reportFindings = kept.map(({ f, i }) => toReportFinding(engine, root, f, prints[i].full));
+  const report: Report = { findings: reportFindings, skipped: collected.skipped, summary: summarize(reportFindings, collected.skipped, baselined) };
   const outFile = flags.values.get('output');
-  if (outFile) fs.writeFileSync(outFile, report);
-  else io.out(report);
-  const rank = { error: 3, warning: 2, info: 1, hint: 0, never: 99 } as const;
-  const threshold = rank[failLevel as keyof typeof rank];
-  return findings.some((f) => rank[f.level] >= threshold) ? 1 : 0;
-}
-
-export function findingJson(engine: Engine, root: string, f: Finding) {
-  const file = engine.ws.get(f.path)?.source;
-  const cell = file ? toCell(file, f.span.line, f.span.col) : undefined;
-  const endCell = file ? toCell(file, f.span.endLine, f.span.endCol) : undefined;
-  return {
-    rule: f.rule,
-    level: f.level,
-    path: displayPath(root, f.path),
-    line: (cell ? cell.line : f.span.line) + 1,
-    column: f.span.col + 1,
-    endLine: (endCell ? endCell.line : f.span.endLine) + 1,
-    endColumn: f.span.endCol + 1,
-    ...(cell ? { cell: cell.cell + 1 } : {}),
-    message: f.message,
-    fixes: f.fixes.map((x) => ({ title: x.title, kind: x.kind, edits: x.edits.map((e) => ({ path: displayPath(root, e.path), start: e.start, end: e.end, newText: e.newText })) })),
-  };
-}
-
-function jsonReport(engine: Engine, root: string, findings: Finding[]): string {
-  return `${JSON.stringify({ findings: findings.map((f) => findingJson(engine, root, f)) }, null, 2)}\n`;
-}
-
-function textReport(engine: Engine, root: string, findings: Finding[]): string {
-  const lines = findings.map((f) => {
-    const j = findingJson(engine, root, f);
-    const where = j.cell ? `${j.path}:cell ${j.cell}:${j.line}:${j.column}` : `${j.path}:${j.line}:${j.column}`;
-    return `${where} ${f.level} ${f.rule} ${f.message}`;
-  });
-  lines.push(`${findings.length} finding${findings.length === 1 ? '' : 's'}`);
-  return `${lines.join('\n')}\n`;
+  const style = chooseStyle(!outFile && !!io.outTty, env);
+  const text = format === 'json' ? jsonReport(report)
+    : format === 'sarif' ? sarifReport(engine, report, shown, RULES, readDoc, root)
+    : textReport(engine, report, shown, style);
+  if (outFile) fs.writeFileSync(outFile, text);
+  else io.out(text);
+  if (env.REGWISE_STATS) {
+    const phases = { walkRead: tRead - started, facts: tFacts - tRead, rules: tRules - tFacts, rest: Date.now() - tRules };
+    io.err(`regwise-stats ${JSON.stringify({ ms: Date.now() - started, phases, files: paths.length, maxRssKB: process.resourceUsage().maxRSS, jobs, workers })}\n`);
+  }
+  const threshold = FAIL_RANK[failLevel];
+  return shown.some((f) => LEVEL_RANK[f.level] >= threshold) ? 1 : 0;
 }
 
 async function model(args: string[], io: Io): Promise<number> {

@@ -1,7 +1,7 @@
 // The human report: `path:line:col level rule message`, the code line with a caret underline, then a summary.
 import type { Engine } from '../engine/engine';
 import type { Finding, Level } from '../engine/types';
-import type { Report, ReportFinding } from './report';
+import type { Position, Report } from './report';
 
 export interface Style {
   bold(s: string): string;
@@ -31,7 +31,7 @@ export function excerpt(text: string, line0: number, col0: number, endLine0: num
   return [`${style.dim(`${gutter} |`)} ${src}`, `${style.dim(`${' '.repeat(5)} |`)} ${pad}${style.bold(carets)}`];
 }
 
-function where(f: ReportFinding): string {
+function where(f: Position): string {
   return f.cell !== undefined ? `${f.path}:cell ${f.cell}:${f.line}:${f.column}` : `${f.path}:${f.line}:${f.column}`;
 }
 

@@ -907,8 +907,17 @@ export class Interp {
       }
       case 'user': {
         const fwd = m.cls ? this.classMember(m.cls, 'forward') : undefined;
-        if (fwd && fwd.value.t === 'func') return this.callFunction(fwd.value.fn, { t: 'module', m }, args, kwargs, frame);
-        return freshTensor();
+        const out = fwd && fwd.value.t === 'func' ? this.callFunction(fwd.value.fn, { t: 'module', m }, args, kwargs, frame) : freshTensor();
+        if (m.children.length) return out;
+        // a user module without submodules is a leaf of named_modules(): like a library layer it consumes the
+        // tensor it is called on and produces what it returns (its forward was still traced above)
+        rec.called.add(m);
+        if (isTensor(input)) {
+          for (const p of input.from) rec.feeds.push([p, m]);
+          rec.inputs.set(m, input);
+        }
+        const mark = (v: Value): Value => (isTensor(v) ? { t: 'tensor', from: [m], ch: v.ch, rank: v.rank } : v);
+        return out.t === 'list' ? { ...out, items: out.items.map(mark) } : mark(out);
       }
       case 'leaf': {
         rec.called.add(m);
@@ -1020,6 +1029,8 @@ export class Interp {
     if (bound?.t === 'obj' && bound.q === 'builtins.open' && method === 'read') {
       return { t: 'obj', q: 'text-of', args: [bound], kwargs: new Map(), state: new Map() };
     }
+    // scikit-learn's fit/partial_fit return the estimator itself, so `s = StandardScaler().fit(X)` names the scaler
+    if (bound?.t === 'obj' && bound.q.startsWith('sklearn.') && (method === 'fit' || method === 'partial_fit')) return bound;
     if (frame.recorder && args.some(isTensor)) return freshTensor();
     return { t: 'obj', q: `${callee.q}()`, args, kwargs, state: new Map(), site: site ? { path: frame.path, call: site } : undefined };
   }

@@ -132,13 +132,18 @@ const PRIVATE_BASES: Record<string, ReadonlySet<Family>> = {
   'torch.nn._DropoutNd': new Set(['dropout', 'alphadropout']),
 };
 
+/** `torch.nn.batchnorm._BatchNorm` (what `nn.modules.batchnorm._BatchNorm` resolves to step by step) → `torch.nn._BatchNorm`. */
+function classPath(q: string): string {
+  return canonical(q).replace(/^torch\.nn\.(?:modules\.)?[a-z_]+\.(?=_?[A-Z])/, 'torch.nn.');
+}
+
 /**
  * Whether torch.nn class `type` is `base` or a subclass of it (torch/nn/modules/*.py class statements):
  * undefined when either class is one the catalog does not describe.
  */
 export function isTorchSubclass(type: string, base: string): boolean | undefined {
-  const t = canonical(type);
-  const b = canonical(base);
+  const t = classPath(type);
+  const b = classPath(base);
   if (t === b || b === 'torch.nn.Module') return true;
   const spec = byType.get(t);
   if (!spec) return CONTAINERS.has(t) && isKnownTorchClass(b) ? false : undefined;
@@ -151,6 +156,6 @@ export function isTorchSubclass(type: string, base: string): boolean | undefined
 
 /** A torch.nn class the catalog describes (layer, container, or private base). */
 export function isKnownTorchClass(q: string): boolean {
-  const c = canonical(q);
+  const c = classPath(q);
   return byType.has(c) || CONTAINERS.has(c) || c in PRIVATE_BASES;
 }

@@ -311,5 +311,102 @@ out["dropout_feeds_batchnorm"] = {
 }
 out["sources"]["dropout_feeds_batchnorm"] = "Li, Chen, Hu, Yang 2019 (variance shift)"
 
+# --- alpha-dropout-without-selu ---------------------------------------------
+# Klambauer et al. 2017: alpha dropout's affine (a, b) is fitted to SELU's fixed
+# point (mean 0, variance 1) and sets dropped units to SELU's negative saturation
+# -lambda*alpha. On ReLU outputs (non-negative, mean ~0.4) it changes the mean by
+# the keep factor a*q and makes negative values ReLU never produces; plain dropout
+# keeps the mean (PyTorch docs torch.nn.Dropout).
+torch.manual_seed(7)
+relu_h = torch.relu(torch.randn(400000))
+with torch.no_grad():
+    after_alpha = nn.AlphaDropout(0.1).train()(relu_h)
+    after_plain = nn.Dropout(0.1).train()(relu_h)
+out["alpha_dropout_on_relu"] = {
+    "rate": 0.1,
+    "relu_mean": float(relu_h.mean()),
+    "alpha_dropout_mean": float(after_alpha.mean()),
+    "plain_dropout_mean": float(after_plain.mean()),
+    "relu_negative_fraction": float((relu_h < 0).float().mean()),
+    "alpha_dropout_negative_fraction": float((after_alpha < 0).float().mean()),
+}
+out["sources"]["alpha_dropout_on_relu"] = "Klambauer et al. 2017 (alpha dropout targets the SELU fixed point); PyTorch docs torch.nn.AlphaDropout, torch.nn.Dropout"
+
+
+# --- selu-init ----------------------------------------------------------------
+# PyTorch docs torch.nn.SELU: with kaiming_normal_ use nonlinearity='linear' for
+# self-normalising networks; Klambauer et al. 2017 assume LeCun-normal weights
+# (variance 1/fan_in). Measured: activation variance after a deep SELU stack.
+def selu_init_stats(nonlinearity, depth=16, width=256, n=4096):
+    torch.manual_seed(8)
+    layers = []
+    for _ in range(depth):
+        lin = nn.Linear(width, width)
+        nn.init.kaiming_normal_(lin.weight, nonlinearity=nonlinearity)
+        nn.init.zeros_(lin.bias)
+        layers += [lin, nn.SELU()]
+    with torch.no_grad():
+        h = nn.Sequential(*layers)(torch.randn(n, width))
+    return {"mean": float(h.mean()), "var": float(h.var())}
+
+
+out["selu_init"] = {
+    "depth": 16, "width": 256,
+    "kaiming_linear": selu_init_stats("linear"),
+    "kaiming_relu": selu_init_stats("relu"),
+    "kaiming_selu": selu_init_stats("selu"),
+    "gain_linear": nn.init.calculate_gain("linear"),
+    "gain_relu": nn.init.calculate_gain("relu"),
+    "gain_selu": nn.init.calculate_gain("selu"),
+}
+out["sources"]["selu_init"] = "PyTorch docs torch.nn.SELU (kaiming_normal_ with nonlinearity='linear'), torch.nn.init.calculate_gain; Klambauer et al. 2017 (LeCun normal)"
+
+
+# --- selu-with-batchnorm --------------------------------------------------------
+# Ioffe & Szegedy 2015: in training a BN output depends on the other examples of
+# the mini-batch; a SELU stack alone does not. Measured: the same example in two
+# different batches, training mode.
+def batch_dependence(with_bn):
+    torch.manual_seed(9)
+    layers = [nn.Linear(16, 32)]
+    if with_bn:
+        layers.append(nn.BatchNorm1d(32))
+    layers += [nn.SELU(), nn.Linear(32, 4)]
+    net = nn.Sequential(*layers).train()
+    x0 = torch.randn(1, 16)
+    with torch.no_grad():
+        a = net(torch.cat([x0, torch.randn(7, 16)]))[0]
+        b = net(torch.cat([x0, torch.randn(7, 16) * 3 + 1]))[0]
+    return maxdiff(a, b)
+
+
+out["selu_with_batchnorm"] = {
+    "selu_stack_same_example_two_batches_max_abs_diff": batch_dependence(False),
+    "selu_bn_stack_same_example_two_batches_max_abs_diff": batch_dependence(True),
+}
+out["sources"]["selu_with_batchnorm"] = "Ioffe & Szegedy 2015 (BN output depends on the mini-batch in training); Klambauer et al. 2017"
+
+
+# --- hand-rolled-dropout: gating ------------------------------------------------
+# PyTorch docs torch.nn.Module.eval: eval() only flips self.training; a mask that
+# does not read it keeps dropping. nn.Dropout is the identity in eval mode.
+class UngatedMask(nn.Module):
+    def forward(self, x):
+        return x * (torch.rand_like(x) > 0.3).float() / 0.7
+
+
+class GatedMask(nn.Module):
+    def forward(self, x):
+        if not self.training:
+            return x
+        return x * (torch.rand_like(x) > 0.3).float() / 0.7
+
+
+xg = torch.randn(64, 32)
+ug, gg = UngatedMask().eval(), GatedMask().eval()
+out["hand_rolled_dropout"]["ungated_eval_two_calls_max_abs_diff"] = maxdiff(ug(xg), ug(xg))
+out["hand_rolled_dropout"]["gated_eval_vs_input_max_abs_diff"] = maxdiff(gg(xg), xg)
+out["hand_rolled_dropout"]["nn_dropout_eval_vs_input_max_abs_diff"] = maxdiff(nn.Dropout(0.3).eval()(xg), xg)
+
 json.dump(out, sys.stdout, indent=1)
 sys.stdout.write("\n")

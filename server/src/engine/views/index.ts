@@ -2,10 +2,14 @@
 import { Interp } from '../interp';
 import type { Workspace } from '../workspace';
 import { ModelGraphs } from './model-graph';
+import { TrainingView } from './training';
+import { DataView } from './data';
 
 export class Views {
   readonly interp: Interp;
   private modelsView: ModelGraphs | undefined;
+  private trainingView: TrainingView | undefined;
+  private dataView: DataView | undefined;
 
   constructor(readonly ws: Workspace) {
     this.interp = new Interp(ws);
@@ -14,5 +18,17 @@ export class Views {
   get models(): ModelGraphs {
     this.modelsView ??= new ModelGraphs(this.ws, this.interp);
     return this.modelsView;
+  }
+
+  /** Modes, evaluation regions, training steps, optimizers and loader↔model pairs (RULES.md section B). */
+  get training(): TrainingView {
+    this.trainingView ??= new TrainingView(this.ws, this.interp);
+    return this.trainingView;
+  }
+
+  /** Splits, preprocessing fits, transforms and datasets, with training/held-out roles (RULES.md section C). */
+  get data(): DataView {
+    this.dataView ??= new DataView(this.ws, this.interp);
+    return this.dataView;
   }
 }

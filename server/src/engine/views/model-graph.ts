@@ -35,7 +35,28 @@ export interface ForwardCall {
   fn?: FuncInfo;
   /** The nn.Module that is `self` of that function, when it is a method of a module. */
   self?: ModuleInst;
+  /** What the call gave (a tensor's identity links it to the layers and calls that take it). */
+  result: Value;
 }
+
+/**
+ * A parameter initialisation made while the model was constructed: an `nn.init.*` call, or an in-place tensor method
+ * (`m.weight.data.normal_(...)`), in `__init__`, a helper it calls, an `apply(fn)` callback or an init loop.
+ */
+export interface InitCall {
+  /** `torch.nn.init.kaiming_normal_`, or `tensor.normal_` for an in-place method. */
+  q: string;
+  path: string;
+  call: CallExpr;
+  args: Value[];
+  kwargs: Map<string, Value>;
+  /** The leaf layer and parameter it initialises, when the interpreter knows which. */
+  layer?: Layer;
+  param?: string;
+}
+
+/** A node of the forward data path: a layer, or a torch function / tensor method called on a tensor. */
+export type FlowNode = Layer | ForwardCall;
 
 export interface ModelGraph {
   cls: ClassInfo;
@@ -56,6 +77,10 @@ export interface ModelGraph {
   byInst: Map<ModuleInst, Layer>;
   /** Calls evaluated while tracing forward, in evaluation order (a call in an unrolled loop appears per pass). */
   calls: ForwardCall[];
+  /** Parameter initialisations made during construction, in execution order (the last one of a parameter wins). */
+  inits: InitCall[];
+  /** The tensor each leaf was last called on in forward (its identity links it to the call that made it). */
+  inputTensors?: Map<ModuleInst, Value>;
 }
 
 /**
@@ -140,9 +165,52 @@ export class ModelGraphs {
     return this.moduleClasses().map((c) => this.graph(c)).filter((g): g is ModelGraph => !!g);
   }
 
+  /**
+   * A layer site can sit in several graphs (a Block alone and inside a Net). The order a finding at a site in
+   * `sitePath` takes its wording from, the same whichever file is checked: graphs of the site's own file, then of the
+   * checked file, then the rest of the workspace.
+   */
+  graphOrder(sitePath: string, checkedPath: string): ModelGraph[] {
+    const out = [...this.graphsIn(sitePath)];
+    for (const g of [...this.graphsIn(checkedPath), ...this.all()]) if (!out.includes(g)) out.push(g);
+    return out;
+  }
+
+  /**
+   * For a call `a.b.Name(...)`, the library module `a.b` denotes in the file's module scope (`torch.nn` for
+   * `nn.Dropout(...)` after `from torch import nn`), so a fix may rename `Name`; undefined for other callee shapes.
+   */
+  calleeOwner(path: string, call: CallExpr): string | undefined {
+    if (call.fn.k !== 'attr') return undefined;
+    const frame: Frame = { scope: this.interp.moduleScope(path), path, body: [], done: false, depth: 0 };
+    try {
+      const v = this.interp.evalExpr(call.fn.obj, frame);
+      return v.t === 'ext' ? v.q : undefined;
+    } catch {
+      return undefined;
+    }
+  }
+
   private build(cls: ClassInfo): ModelGraph {
     const frame: Frame = { scope: cls.scope, path: cls.path, body: [], done: false, depth: 0 };
-    const v = this.interp.instantiate(cls, [], new Map(), frame);
+    const rawInits: (Omit<InitCall, 'layer' | 'param'> & { target?: { inst: ModuleInst; param: string } })[] = [];
+    const initObserver: CallObserver = (call, callee, args, kwargs, fr) => {
+      if (callee.t === 'ext' && callee.q.startsWith('torch.nn.init.')) {
+        rawInits.push({ q: callee.q, path: fr.path, call, args, kwargs, target: paramOf(args[0] ?? kwargs.get('tensor')) });
+      } else if (callee.t === 'obj') {
+        const method = callee.q.slice(callee.q.lastIndexOf('.') + 1);
+        const target = method.endsWith('_') && !method.startsWith('_') ? paramOf(callee.state.get('__bound__')) : undefined;
+        if (target) rawInits.push({ q: `tensor.${method}`, path: fr.path, call, args, kwargs, target });
+      }
+    };
+    let v: Value;
+    this.interp.observers.push(initObserver);
+    try {
+      v = this.interp.instantiate(cls, [], new Map(), frame);
+    } finally {
+      const at = this.interp.observers.indexOf(initObserver);
+      if (at >= 0) this.interp.observers.splice(at, 1);
+    }
     if (v.t !== 'module') throw new Error(`${cls.name} did not build a module`);
     const root = v.m;
     const modules = nameModules(root);
@@ -157,11 +225,11 @@ export class ModelGraphs {
     // trace forward once with a fresh input tensor
     const rec: FlowRecorder = { feeds: [], inputs: new Map(), called: new Set() };
     const calls: ForwardCall[] = [];
-    const observe: CallObserver = (call, callee, args, kwargs, fr) => {
+    const observe: CallObserver = (call, callee, args, kwargs, fr, result) => {
       if (fr.recorder !== rec) return;
       calls.push({
         call, path: fr.path, callee, q: callee.t === 'ext' ? callee.q : undefined, args, kwargs, fn: fr.fn,
-        self: fr.fn?.owner && fr.self?.t === 'module' ? fr.self.m : undefined,
+        self: fr.fn?.owner && fr.self?.t === 'module' ? fr.self.m : undefined, result,
       });
     };
     this.interp.observers.push(observe);
@@ -203,7 +271,8 @@ export class ModelGraphs {
       if (l) l.input = { ch: t.ch, rank: t.rank, from: t.from.map((f) => byInst.get(f)).filter((x): x is Layer => !!x) };
     }
     const opaque = layers.filter((l) => l.inst.kind === 'opaque' || (l.inst.kind === 'leaf' && !layerSpec(l.type) && l.family === 'other' && !l.type.startsWith('torch.nn.')));
-    return { cls, path: cls.path, className: cls.name, classSpan: cls.stmt.nameSpan, root, layers, modules, flow, traced, opaque, byInst, calls };
+    const inits: InitCall[] = rawInits.map(({ target, ...r }) => ({ ...r, layer: target && byInst.get(target.inst), param: target?.param }));
+    return { cls, path: cls.path, className: cls.name, classSpan: cls.stmt.nameSpan, root, layers, modules, flow, traced, opaque, byInst, calls, inits, inputTensors: rec.inputs };
   }
 
   /** Layers fed directly by `l`, and those feeding it. */
@@ -214,4 +283,100 @@ export class ModelGraphs {
   static producers(g: ModelGraph, l: Layer): Layer[] {
     return g.flow.filter(([, b]) => b === l).map(([a]) => a);
   }
+
+  /**
+   * Layers the output of `start` reaches in forward, following layer feeds and tensor calls (`F.relu`, `torch.cat`,
+   * `x.view`), linked by tensor identity; `through` decides whether a path goes on past a node it reached (the layer is
+   * still reported). `via` lists the nodes between. Each node is visited once, nearest first.
+   */
+  static downstream(g: ModelGraph, start: FlowNode, through: (n: FlowNode) => boolean): { layer: Layer; via: FlowNode[] }[] {
+    const links = tensorLinks(g);
+    const out: { layer: Layer; via: FlowNode[] }[] = [];
+    const seen = new Set<FlowNode>([start]);
+    const queue: { n: FlowNode; via: FlowNode[] }[] = [{ n: start, via: [] }];
+    while (queue.length) {
+      const { n, via } = queue.shift()!;
+      const next = isForwardCall(n) ? links.callNext.get(n) ?? [] : [...ModelGraphs.consumers(g, n), ...(links.layerNext.get(n) ?? [])];
+      for (const m of next) {
+        if (seen.has(m)) continue;
+        seen.add(m);
+        if (!isForwardCall(m)) out.push({ layer: m, via });
+        if (through(m)) queue.push({ n: m, via: [...via, m] });
+      }
+    }
+    return out;
+  }
+}
+
+export function isForwardCall(n: FlowNode): n is ForwardCall {
+  return 'callee' in n;
+}
+
+/** `torch.nn.functional.dropout` for a library function, `tensor.view` for a tensor method; undefined otherwise. */
+export function tensorCallName(c: ForwardCall): string | undefined {
+  if (c.q) return c.q;
+  if (c.callee.t === 'obj' && c.callee.state.get('__bound__')?.t === 'tensor') return `tensor.${c.callee.q.slice(c.callee.q.lastIndexOf('.') + 1)}`;
+  return undefined;
+}
+
+/** The tensors a call takes: arguments (and items of list arguments, as torch.cat's), and the tensor a method is bound to. */
+function tensorArgs(c: ForwardCall): Value[] {
+  const vals = [...c.args, ...c.kwargs.values()].flatMap((a) => (a.t === 'list' ? a.items : [a]));
+  const bound = c.callee.t === 'obj' ? c.callee.state.get('__bound__') : undefined;
+  if (bound) vals.push(bound);
+  return vals.filter((a) => a.t === 'tensor');
+}
+
+const linkCache = new WeakMap<ModelGraph, { layerNext: Map<Layer, ForwardCall[]>; callNext: Map<ForwardCall, FlowNode[]> }>();
+
+/** Which library calls take a layer's output or a call's result, and which layers are called on a call's result. */
+function tensorLinks(g: ModelGraph): { layerNext: Map<Layer, ForwardCall[]>; callNext: Map<ForwardCall, FlowNode[]> } {
+  const hit = linkCache.get(g);
+  if (hit) return hit;
+  const layerNext = new Map<Layer, ForwardCall[]>();
+  const callNext = new Map<ForwardCall, FlowNode[]>();
+  const byResult = new Map<Value, ForwardCall>();
+  const push = <K, V>(m: Map<K, V[]>, k: K, v: V) => {
+    const l = m.get(k) ?? [];
+    if (!l.includes(v)) l.push(v);
+    m.set(k, l);
+  };
+  for (const c of g.calls) {
+    if (!tensorCallName(c)) continue;
+    for (const t of tensorArgs(c)) {
+      const prev = byResult.get(t);
+      if (prev) push(callNext, prev, c);
+      if (t.t === 'tensor') for (const f of t.from) {
+        const l = g.byInst.get(f);
+        if (l) push(layerNext, l, c);
+      }
+    }
+    if (c.result.t === 'tensor') byResult.set(c.result, c);
+  }
+  for (const l of g.layers) {
+    const t = l.inst && inputTensor(g, l);
+    const c = t && byResult.get(t);
+    if (c) push(callNext, c, l);
+  }
+  const links = { layerNext, callNext };
+  linkCache.set(g, links);
+  return links;
+}
+
+function inputTensor(g: ModelGraph, l: Layer): Value | undefined {
+  return g.inputTensors?.get(l.inst);
+}
+
+/** `m.weight`, `m.weight.data`: the module and parameter name an init call's tensor argument denotes. */
+function paramOf(v: Value | undefined): { inst: ModuleInst; param: string } | undefined {
+  for (let i = 0; v && v.t === 'obj' && i < 4; i++) {
+    const bound = v.state.get('__bound__');
+    if (bound?.t === 'module') {
+      const param = v.q.slice(v.q.lastIndexOf('.') + 1);
+      return param === 'weight' || param === 'bias' ? { inst: bound.m, param } : undefined;
+    }
+    if (!v.q.endsWith('().data')) return undefined;
+    v = bound;
+  }
+  return undefined;
 }

@@ -1,0 +1,47 @@
+// eval-mode-missing: a module with dropout or BatchNorm evaluated (no_grad/inference_mode) while it may be in training mode.
+import { defineRule } from '../server/src/engine/rule';
+import { lineRef } from './util';
+import { insertLineBefore } from './line-edits';
+
+export default defineRule({
+  meta: {
+    id: 'eval-mode-missing',
+    title: 'Evaluation without eval()',
+    family: 'training',
+    level: 'warning',
+    frameworks: ['pytorch'],
+    summary: 'A module with dropout or BatchNorm is run for evaluation or inference while no `.eval()` reaches it on every path, so dropout still drops and BatchNorm still uses and updates batch statistics.',
+    fix: 'safe',
+    sources: [
+      'PyTorch autograd notes, "Locally disabling gradient computation" (no_grad and inference_mode do not change the module mode)',
+      'PyTorch docs: torch.nn.Module.eval, torch.nn.Dropout, torch.nn.BatchNorm2d',
+    ],
+    messages: {
+      missing:
+        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its layers ({what}) behave as in training: dropout keeps dropping and BatchNorm keeps using and updating batch statistics. Call `{model}.eval()` before the region.',
+    },
+  },
+  check(ctx) {
+    for (const ev of ctx.views.training.evalFindings()) {
+      if (ev.region.path !== ctx.path) continue;
+      const text = ctx.textOf(ev.region.path);
+      const edit = insertLineBefore(text, ev.insertPath, ev.insertBefore, `${ev.ref.text}.eval()`);
+      const via = ev.via.length ? ` (as called from ${lineRef(ev.via[0].path, ev.via[0].span.line)})` : '';
+      ctx.report({
+        messageId: 'missing',
+        data: {
+          type: ev.caring.type,
+          model: ev.ref.text,
+          region: text.slice(ev.region.span.start, ev.region.span.end),
+          fn: ev.fnName,
+          via,
+          what: ev.caring.what,
+        },
+        path: ev.region.path,
+        span: ev.region.span,
+        related: ev.via.map((s) => ({ path: s.path, span: s.span, message: 'called here with the module in training mode on some path' })),
+        fixes: edit ? [{ title: `Insert \`${ev.ref.text}.eval()\` before the evaluation`, kind: 'safe', edits: [edit] }] : [],
+      });
+    }
+  },
+});
