@@ -83,7 +83,9 @@ const keep = process.argv.indexOf('--save');
 if (keep > 0) fs.writeFileSync(process.argv[keep + 1], text);
 const uri = pathToFileURL(file).href;
 
-const proc = spawn(process.execPath, [server, '--stdio'], { stdio: ['pipe', 'pipe', 'inherit'] });
+// REGWISE_SERVER_NODE_ARGS: extra node flags for the server process (e.g. --cpu-prof to find where time goes)
+const nodeArgs = (process.env.REGWISE_SERVER_NODE_ARGS ?? '').split(' ').filter(Boolean);
+const proc = spawn(process.execPath, [...nodeArgs, server, '--stdio'], { stdio: ['pipe', 'pipe', 'inherit'] });
 const conn = lsp.createProtocolConnection(new lsp.StreamMessageReader(proc.stdout), new lsp.StreamMessageWriter(proc.stdin));
 const waiting = new Map();
 let lastCount = 0;

@@ -1,17 +1,17 @@
 // alpha-dropout-without-selu: AlphaDropout in a network whose activations are ReLU-family only (no SELU to pair with).
 import { defineRule, type RuleContext } from '../server/src/engine/rule';
-import type { CallExpr } from '../server/src/engine/ir';
 import type { Fix } from '../server/src/engine/types';
 import { pyRepr } from '../server/src/engine/values';
 import { activationProfile, type ActivationUse } from '../server/src/engine/views/activations';
-import { callArg, tensorCallName, type ModelGraph } from '../server/src/engine/views/model-graph';
+import { functionalDropouts } from '../server/src/engine/views/functional-dropout';
+import type { ModelGraph } from '../server/src/engine/views/model-graph';
 import { lineRef, onePerSite, siteKey, type SiteFinding } from './util';
 
 const MESSAGES = {
   layer:
     '{type} `{layer}` (p={rate}) sits in `{model}`, whose activations are ReLU-family only ({acts}) with no SELU: alpha dropout drops units to SELU\'s negative saturation value (-1.758) and re-centres, which only keeps the statistics of a SELU network. Plain {plain}(p={rate}) is the usual regulariser here.',
   functional:
-    '`{fn}` in forward of `{model}`, whose activations are ReLU-family only ({acts}) with no SELU: alpha dropout only keeps the statistics of a SELU network. `F.{plain}` is the usual regulariser here.',
+    '`{fn}` in forward of `{model}`, whose activations are ReLU-family only ({acts}) with no SELU: alpha dropout only keeps the statistics of a SELU network. `F.{plain}` (or its 1-D/3-D variant) is the usual regulariser here.',
 } as const;
 type Ctx = RuleContext<typeof MESSAGES>;
 
@@ -80,22 +80,21 @@ function candidates(ctx: Ctx, g: ModelGraph): Cand[] {
       },
     });
   }
-  const seen = new Set<CallExpr>();
-  for (const fc of g.calls) {
-    const q = tensorCallName(fc);
-    if (q !== 'torch.nn.functional.alpha_dropout' || seen.has(fc.call)) continue;
-    seen.add(fc.call);
-    const call = fc.call;
+  for (const d of functionalDropouts(g)) {
+    if (!d.alpha) continue;
+    const call = d.call;
+    const fn = d.q.slice('torch.nn.functional.'.length);
     out.push({
-      key: siteKey(fc.path, call),
-      sitePath: fc.path,
+      key: siteKey(d.path, call),
+      sitePath: d.path,
       report: () => {
         const fixes: Fix[] = [];
-        // F.alpha_dropout defaults to training=False, F.dropout to True: rename only when training= is explicit
-        if (callArg(call, 2, 'training').given === 'yes' && call.fn.k === 'attr' && ctx.views.models.calleeOwner(fc.path, call) === 'torch.nn.functional') {
-          fixes.push({ title: 'Use F.dropout', kind: 'suggested', edits: [{ path: fc.path, start: call.fn.attrSpan.start, end: call.fn.attrSpan.end, newText: 'dropout' }] });
+        // F.alpha_dropout defaults to training=False, F.dropout to True: rename only when training= is explicit;
+        // feature_alpha_dropout's plain counterpart depends on the input rank, so it gets no rename
+        if (fn === 'alpha_dropout' && d.training === 'yes' && call.fn.k === 'attr' && ctx.views.models.calleeOwner(d.path, call) === 'torch.nn.functional') {
+          fixes.push({ title: 'Use F.dropout', kind: 'suggested', edits: [{ path: d.path, start: call.fn.attrSpan.start, end: call.fn.attrSpan.end, newText: 'dropout' }] });
         }
-        ctx.report({ messageId: 'functional', data: { fn: 'F.alpha_dropout', model: g.className, acts, plain: 'dropout' }, path: fc.path, span: call.span, fixes });
+        ctx.report({ messageId: 'functional', data: { fn: `F.${fn}`, model: g.className, acts, plain: fn === 'alpha_dropout' ? 'dropout' : 'dropout2d' }, path: d.path, span: call.span, fixes });
       },
     });
   }

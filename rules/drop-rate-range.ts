@@ -5,7 +5,7 @@ import type { Related } from '../server/src/engine/types';
 import { pyRepr, type Value } from '../server/src/engine/values';
 import { layerSpec } from '../server/src/engine/torch-catalog';
 import { callArg } from '../server/src/engine/views/model-graph';
-import { functionalDropouts } from '../server/src/engine/views/functional-dropout';
+import { functionalDropoutsIn } from '../server/src/engine/views/functional-dropout';
 import { layerShortType, pyNumber } from './util';
 
 export default defineRule({
@@ -79,14 +79,14 @@ export default defineRule({
           when: 'at construction',
         });
       }
-      for (const d of functionalDropouts(g)) {
-        if (!d.pExpr) continue;
-        const fn = d.q.replace(/^torch\.nn\.functional\./, 'F.');
-        report({
-          where: `\`${fn}\``, type: fn, name: 'p', value: d.p, path: d.path, call: d.call, expr: d.pExpr,
-          what: 'activations', when: 'at the first forward call',
-        });
-      }
+    }
+    for (const d of functionalDropoutsIn(ctx.views.models, ctx.path)) {
+      if (!d.pExpr) continue;
+      const fn = d.q.replace(/^torch\.nn\.functional\./, 'F.');
+      report({
+        where: `\`${fn}\``, type: fn, name: 'p', value: d.p, path: d.path, call: d.call, expr: d.pExpr,
+        what: 'activations', when: 'at the first forward call',
+      });
     }
   },
 });

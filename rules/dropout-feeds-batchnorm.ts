@@ -4,7 +4,8 @@ import type { CallExpr, Span } from '../server/src/engine/ir';
 import type { Related } from '../server/src/engine/types';
 import { CHANNEL_PRESERVING_FUNCTIONS, NORM_FAMILIES } from '../server/src/engine/torch-catalog';
 import { pyRepr } from '../server/src/engine/values';
-import { isForwardCall, ModelGraphs, tensorCallName, type FlowNode, type ForwardCall, type Layer, type ModelGraph } from '../server/src/engine/views/model-graph';
+import { FUNCTIONAL_DROPOUTS } from '../server/src/engine/views/functional-dropout';
+import { isForwardCall, ModelGraphs, tensorCallName, type FlowNode, type Layer, type ModelGraph } from '../server/src/engine/views/model-graph';
 import { layerLabel, layerLine, lineRef, onePerSite, siteKey, type SiteFinding } from './util';
 
 interface Cand extends SiteFinding {
@@ -13,8 +14,6 @@ interface Cand extends SiteFinding {
   span: Span;
   related: Related[];
 }
-
-const FUNCTIONAL_DROPOUT = new Set(['dropout', 'dropout1d', 'dropout2d', 'dropout3d', 'alpha_dropout', 'feature_alpha_dropout'].map((n) => `torch.nn.functional.${n}`));
 
 /** Calls a path goes on through: element-wise ops, pooling, dropout, and reshapes that keep the values. */
 const PASS_CALLS = new Set([
@@ -87,9 +86,9 @@ function candidates(g: ModelGraph): Cand[] {
   }
   // a functional dropout in a loop is evaluated once per pass: the first pass that reaches a BatchNorm speaks for it
   const done = new Set<CallExpr>();
-  for (const c of g.calls as ForwardCall[]) {
+  for (const c of g.calls) {
     const q = tensorCallName(c);
-    if (!q || !FUNCTIONAL_DROPOUT.has(q) || done.has(c.call)) continue;
+    if (!q || !FUNCTIONAL_DROPOUTS.has(q) || done.has(c.call)) continue;
     const hit = firstBatchNorm(g, c);
     if (!hit) continue;
     done.add(c.call);

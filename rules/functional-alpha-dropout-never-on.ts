@@ -1,7 +1,7 @@
 // functional-alpha-dropout-never-on: F.alpha_dropout / feature_alpha_dropout without `training=` (default False).
 import { dottedName } from '../server/src/engine/ir';
 import { defineRule } from '../server/src/engine/rule';
-import { functionalDropouts } from '../server/src/engine/views/functional-dropout';
+import { functionalDropoutsIn } from '../server/src/engine/views/functional-dropout';
 import { kwargEdit } from './util';
 
 export default defineRule({
@@ -24,23 +24,21 @@ export default defineRule({
   },
   check(ctx) {
     const seen = new Set<number>();
-    for (const g of ctx.views.models.graphsIn(ctx.path)) {
-      for (const d of functionalDropouts(g)) {
-        if (!d.alpha || d.training !== 'no' || !d.method || d.path !== ctx.path || seen.has(d.call.span.start)) continue;
-        seen.add(d.call.span.start);
-        const edit = kwargEdit(ctx.textOf(d.path), d.path, d.call, 'training', `${d.method.selfName}.training`);
-        ctx.report({
-          messageId: 'neverOn',
-          data: {
-            fn: dottedName(d.call.fn) ?? d.q,
-            method: `${d.method.fn.owner?.name ?? g.className}.${d.method.fn.name}`,
-            self: d.method.selfName,
-          },
-          path: d.path,
-          span: d.call.span,
-          fixes: edit ? [{ title: `Pass training=${d.method.selfName}.training`, kind: 'safe', edits: [edit] }] : [],
-        });
-      }
+    for (const d of functionalDropoutsIn(ctx.views.models, ctx.path)) {
+      if (!d.alpha || d.training !== 'no' || !d.method || d.path !== ctx.path || seen.has(d.call.span.start)) continue;
+      seen.add(d.call.span.start);
+      const edit = kwargEdit(ctx.textOf(d.path), d.path, d.call, 'training', `${d.method.selfName}.training`);
+      ctx.report({
+        messageId: 'neverOn',
+        data: {
+          fn: dottedName(d.call.fn) ?? d.q,
+          method: `${d.method.fn.owner?.name ?? '?'}.${d.method.fn.name}`,
+          self: d.method.selfName,
+        },
+        path: d.path,
+        span: d.call.span,
+        fixes: edit ? [{ title: `Pass training=${d.method.selfName}.training`, kind: 'safe', edits: [edit] }] : [],
+      });
     }
   },
 });

@@ -1,7 +1,6 @@
 // hand-rolled-dropout: a random keep mask multiplied into activations without the 1/(1-p) rescale or a training gate.
 import { defineRule } from '../server/src/engine/rule';
-import type { Span } from '../server/src/engine/ir';
-import { maskApplications, type MaskApplication } from '../server/src/engine/views/masks';
+import { maskApplicationsIn } from '../server/src/engine/views/masks';
 
 export default defineRule({
   meta: {
@@ -26,27 +25,14 @@ export default defineRule({
     },
   },
   check(ctx) {
-    const bySite = new Map<string, { a: MaskApplication; span: Span; rescaled: boolean; gated: boolean }>();
-    // a function can run under several models (a block alone and inside a network): it is gated if any caller gates it
-    for (const g of ctx.views.models.all()) {
-      for (const a of maskApplications(g, ctx.views.interp)) {
-        if (a.path !== ctx.path) continue;
-        const key = `${a.span.start}:${a.span.end}`;
-        const cur = bySite.get(key);
-        if (cur) {
-          cur.gated ||= a.gated;
-          cur.rescaled ||= a.rescaled;
-        } else bySite.set(key, { a, span: a.span, rescaled: a.rescaled, gated: a.gated });
-      }
-    }
-    for (const { a, span, rescaled, gated } of bySite.values()) {
-      if (rescaled && gated) continue;
+    for (const a of maskApplicationsIn(ctx.views.models, ctx.views.interp, ctx.path)) {
+      if (a.rescaled && a.gated) continue;
       const fn = a.fn.owner ? `${a.fn.owner.name}.${a.fn.name}` : a.fn.name;
       ctx.report({
-        messageId: !rescaled && !gated ? 'neither' : !rescaled ? 'noRescale' : 'notGated',
+        messageId: !a.rescaled && !a.gated ? 'neither' : !a.rescaled ? 'noRescale' : 'notGated',
         data: { fn },
         path: a.path,
-        span,
+        span: a.span,
         related: [{ path: a.path, span: a.maskSpan, message: 'the random mask' }],
       });
     }

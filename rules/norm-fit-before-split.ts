@@ -1,5 +1,6 @@
 // norm-fit-before-split: preprocessing statistics learned from rows that a later split or cross-validation holds out.
 import { defineRule } from '../server/src/engine/rule';
+import type { Span } from '../server/src/engine/ir';
 import type { FitEvent } from '../server/src/engine/views/data';
 
 export default defineRule({
@@ -29,8 +30,19 @@ export default defineRule({
   check(ctx) {
     const data = ctx.views.data;
     const d = data.forFile(ctx.path);
-    const report = (fit: FitEvent, where: { label: string; path: string; span: typeof fit.call.span }, cv: boolean) => {
-      const messageId = fit.kind === 'stats' ? (cv ? 'statsCv' : 'stats') : cv ? 'cv' : 'split';
+    // one finding per fit: the first split it leaks into (else the cross-validation); every such place is related
+    const byFit = new Map<FitEvent, { label: string; path: string; span: Span; cv: boolean }[]>();
+    const add = (fit: FitEvent, w: { label: string; path: string; span: Span }, cv: boolean) => {
+      const list = byFit.get(fit) ?? [];
+      if (!list.some((x) => x.span.start === w.span.start && x.path === w.path)) list.push({ label: w.label, path: w.path, span: w.span, cv });
+      byFit.set(fit, list);
+    };
+    // K-fold parts count as cross-validation: a fit on all rows transformed inside the fold loop leaks into every fold
+    for (const l of d.splitLeaks) if (l.split) add(l.fit, l.split, l.split.cv);
+    for (const l of d.cvLeaks) if (l.cv) add(l.fit, l.cv, true);
+    for (const [fit, places] of byFit) {
+      const first = places[0];
+      const messageId = fit.kind === 'stats' ? (first.cv ? 'statsCv' : 'stats') : first.cv ? 'cv' : 'split';
       ctx.report({
         messageId,
         data: {
@@ -38,15 +50,13 @@ export default defineRule({
           fitPlace: data.place(fit.path, fit.call.span.line),
           estimator: fit.estimator,
           data: fit.dataText,
-          split: where.label,
-          splitPlace: data.place(where.path, where.span.line),
+          split: first.label,
+          splitPlace: data.place(first.path, first.span.line),
         },
         path: fit.path,
         span: fit.call.span,
-        related: [{ path: where.path, span: where.span, message: cv ? 'cross-validation over rows the fit has seen' : 'the split that holds out rows the fit has seen' }],
+        related: places.map((w) => ({ path: w.path, span: w.span, message: w.cv ? 'cross-validation over rows the fit has seen' : 'a split that holds out rows the fit has seen' })),
       });
-    };
-    for (const l of d.splitLeaks) if (l.split && !l.split.cv) report(l.fit, l.split, false);
-    for (const l of d.cvLeaks) if (l.cv) report(l.fit, l.cv, true);
+    }
   },
 });

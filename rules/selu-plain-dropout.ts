@@ -1,10 +1,10 @@
 // selu-plain-dropout: ordinary dropout (layer or F.dropout) inside a self-normalising SELU network.
 import { defineRule, type RuleContext } from '../server/src/engine/rule';
-import type { CallExpr } from '../server/src/engine/ir';
 import type { Fix, TextEdit } from '../server/src/engine/types';
 import { pyRepr } from '../server/src/engine/values';
 import { activationProfile, type ActivationProfile } from '../server/src/engine/views/activations';
-import { callArg, tensorCallName, type ModelGraph } from '../server/src/engine/views/model-graph';
+import { functionalDropouts } from '../server/src/engine/views/functional-dropout';
+import type { ModelGraph } from '../server/src/engine/views/model-graph';
 import { kwargEdit, layerLabel, lineRef, onePerSite, siteKey, type SiteFinding } from './util';
 
 /** Plain dropout and its self-normalising counterpart (torch/nn/modules/dropout.py, torch/nn/functional.py). */
@@ -87,38 +87,34 @@ function candidates(ctx: Ctx, g: ModelGraph): Cand[] {
       },
     });
   }
-  const seen = new Set<CallExpr>();
-  for (const fc of g.calls) {
-    const q = tensorCallName(fc);
-    const alpha = q && FUNC_SWAP[q];
-    if (!alpha || seen.has(fc.call)) continue;
-    seen.add(fc.call);
-    const call = fc.call;
-    const fnName = `F.${q!.slice('torch.nn.functional.'.length)}`;
+  for (const d of functionalDropouts(g)) {
+    const alpha = FUNC_SWAP[d.q];
+    if (!alpha) continue;
+    const call = d.call;
+    const fnName = `F.${d.q.slice('torch.nn.functional.'.length)}`;
     out.push({
-      key: siteKey(fc.path, call),
-      sitePath: fc.path,
+      key: siteKey(d.path, call),
+      sitePath: d.path,
       report: () => {
         const fixes: Fix[] = [];
-        if (call.fn.k === 'attr' && ctx.views.models.calleeOwner(fc.path, call) === 'torch.nn.functional') {
-          const edits: TextEdit[] = [{ path: fc.path, start: call.fn.attrSpan.start, end: call.fn.attrSpan.end, newText: alpha }];
+        if (call.fn.k === 'attr' && ctx.views.models.calleeOwner(d.path, call) === 'torch.nn.functional') {
+          const edits: TextEdit[] = [{ path: d.path, start: call.fn.attrSpan.start, end: call.fn.attrSpan.end, newText: alpha }];
           // F.dropout defaults to training=True, F.alpha_dropout to training=False: keep it dropping in training only
-          const training = callArg(call, 2, 'training');
-          const selfName = fc.self && fc.fn?.stmt.params[0]?.name;
-          let ok = training.given === 'yes';
-          if (training.given === 'no' && selfName) {
-            const e = kwargEdit(ctx.textOf(fc.path), fc.path, call, 'training', `${selfName}.training`);
+          const selfName = d.method?.selfName;
+          let ok = d.training === 'yes';
+          if (d.training === 'no' && selfName) {
+            const e = kwargEdit(ctx.textOf(d.path), d.path, call, 'training', `${selfName}.training`);
             if (e) {
               edits.push(e);
               ok = true;
             }
           }
-          if (ok) fixes.push({ title: `Use F.${alpha}${training.given === 'yes' ? '' : ` with training=${selfName}.training`}`, kind: 'safe', edits });
+          if (ok) fixes.push({ title: `Use F.${alpha}${d.training === 'yes' ? '' : ` with training=${selfName}.training`}`, kind: 'safe', edits });
         }
         ctx.report({
           messageId: 'functional',
           data: { fn: fnName, model: g.className, selu, alpha },
-          path: fc.path,
+          path: d.path,
           span: call.span,
           fixes,
         });

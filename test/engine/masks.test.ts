@@ -71,4 +71,6 @@ test('callees are resolved by the interpreter: a user function named rand is no 
 test('multiplying two masks together is not an application; a padding mask argument is no random mask', async () => {
   expect(await apps(body('        a = torch.rand_like(x) > 0.5\n        b = torch.rand_like(x) > 0.5\n        both = a * b\n        return x\n'))).toEqual([]);
   expect(await apps(`${H}class M(nn.Module):\n    def forward(self, x, mask):\n        return x * mask\n`)).toEqual([]);
+  // a Bernoulli sample times a parameter (an RBM's visible units and bias) is sampling, not dropout
+  expect(await apps(body('        v = torch.bernoulli(torch.sigmoid(x))\n        return (v * self.v_bias).sum()\n', '        self.v_bias = nn.Parameter(torch.zeros(8))\n'))).toEqual([]);
 });

@@ -112,3 +112,23 @@ describe('tensor-call links', () => {
     expect(views.models.calleeOwner('main.py', fc.call)).toBe('torch.nn.functional');
   });
 });
+
+describe('named_modules() in init loops', () => {
+  test("name tests like `'head' in name` are substring tests", async () => {
+    const { g } = await graph(
+      [
+        'import torch.nn as nn',
+        'class M(nn.Module):',
+        '    def __init__(self):',
+        '        super().__init__()',
+        '        self.body = nn.Linear(4, 4)',
+        '        self.head = nn.Sequential(nn.Linear(4, 2))',
+        '        for name, m in self.named_modules():',
+        "            if 'head' in name and isinstance(m, nn.Linear):",
+        '                nn.init.zeros_(m.weight)',
+      ].join('\n'),
+      'M',
+    );
+    expect(initLine(g)).toEqual(['zeros_@9>head.0.weight']);
+  });
+});

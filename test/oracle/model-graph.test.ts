@@ -11,6 +11,10 @@ interface Side {
   flow: string[];
 }
 
+/** Scalar constructor attributes both sides spell the same way (named_modules.py `attrs`, regwise `args`). */
+const SCALAR_ARGS = ['in_channels', 'out_channels', 'groups', 'in_features', 'out_features', 'num_features', 'num_groups', 'num_channels',
+  'momentum', 'eps', 'affine', 'track_running_stats', 'p', 'input_size', 'hidden_size', 'num_layers', 'dropout', 'bidirectional', 'batch_first', 'bias'];
+
 /** `torch.nn.Conv2d` stays; a user class (`pollinator_cnn.legacy.SpatialDropBlock` / `SpatialDropBlock`) → its name. */
 function typeKey(t: string): string {
   return t.startsWith('torch.nn.') ? t : t.slice(t.lastIndexOf('.') + 1);
@@ -65,6 +69,20 @@ oracleSuite('model graph oracle: named_modules() and forward hooks vs regwise mo
         got.flow = (m.flow as string[][]).map(([a, b]) => `${a} > ${b}`).sort();
       }
       expect(got).toEqual(want);
+      // constructor arguments the rules read, as the interpreter resolved them (tuples such as kernel_size differ in
+      // spelling between the two sides and are left out)
+      const wantArgs: string[] = [];
+      const gotArgs: string[] = [];
+      for (const l of c.layers as any[]) {
+        const r = m.layers.find((x: any) => x.name === l.name);
+        for (const k of SCALAR_ARGS) {
+          if (!(k in l.attrs)) continue;
+          wantArgs.push(`${l.name}.${k}=${JSON.stringify(l.attrs[k])}`);
+          gotArgs.push(`${l.name}.${k}=${JSON.stringify(r?.args?.[k] ?? null)}`);
+        }
+      }
+      if (c.layers.length) expect(wantArgs.length, 'no constructor arguments compared').toBeGreaterThan(0);
+      expect(gotArgs).toEqual(wantArgs);
     });
   }
 });

@@ -252,5 +252,32 @@ oracleSuite('section A oracle: PyTorch facts behind the model-definition rules',
       expect(m.fixed.construct_error).toBeNull();
       expect(m.fixed.forward_error).toBeNull();
     });
+
+    test('norm-channel-mismatch: the suggested channel count and the suggested BatchNorm rank run where forward raised', async () => {
+      // torch/nn/modules/batchnorm.py (_check_input_dim), torch/nn/functional.py batch_norm
+      const channels = 'import torch.nn as nn\n\n\nclass M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.conv = nn.Conv2d(3, 96, 3, padding=1, bias=False)\n        self.bn = nn.BatchNorm2d(128)\n\n    def forward(self, x):\n        return self.bn(self.conv(x))\n';
+      const fixedChannels = await applyFix('norm-channel-mismatch', channels, 'suggested');
+      const c = measure('norm_channels', channels, fixedChannels, [2, 3, 8, 8]);
+      expect(c.original.forward_error?.type).toBe('RuntimeError');
+      expect(c.original.forward_error?.message).toMatch(/running_mean should contain 96 elements not 128/);
+      expect(c.fixed.forward_error).toBeNull();
+      const rank = 'import torch.nn as nn\n\n\nclass M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.fc = nn.Linear(16, 64, bias=False)\n        self.bn = nn.BatchNorm2d(64)\n\n    def forward(self, x):\n        return self.bn(self.fc(x))\n';
+      const fixedRank = await applyFix('norm-channel-mismatch', rank, 'suggested');
+      const r = measure('norm_rank', rank, fixedRank, [4, 16]);
+      expect(r.original.forward_error).toEqual({ type: 'ValueError', message: 'expected 4D input (got 2D input)' });
+      expect(r.fixed.forward_error).toBeNull();
+    });
+
+    test('selu-plain-dropout: the AlphaDropout fix keeps the parameters and makes eval deterministic as before', async () => {
+      // PyTorch docs torch.nn.AlphaDropout; Klambauer et al. 2017 (the mean/variance claim is measured above)
+      const code = 'import torch.nn as nn\n\n\nclass M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.net = nn.Sequential(nn.Linear(32, 64), nn.SELU(), nn.Dropout(0.2), nn.Linear(64, 8))\n\n    def forward(self, x):\n        return self.net(x)\n';
+      const fixed = await applyFix('selu-plain-dropout', code, 'safe');
+      expect(fixed).toContain('nn.AlphaDropout(0.2)');
+      const m = measure('selu_plain_dropout', code, fixed, [16, 32]);
+      expect(m.fixed.construct_error).toBeNull();
+      expect(m.transfer).toEqual({ missing_keys: [], unexpected_keys: [] });
+      expect(m.fixed.eval_two_calls_max_abs_diff).toBe(0);
+      expect(m.fixed.train_two_calls_max_abs_diff).toBeGreaterThan(0.01);
+    });
   });
 });

@@ -59,6 +59,14 @@ test('functional-dropout-always-on', async () => {
           if (!found[0].message.includes('50% (p=0.5)')) throw new Error(found[0].message);
         },
       },
+      {
+        name: 'forward inherited from a base class in another file',
+        code: {
+          'base.py': 'import torch.nn as nn\nimport torch.nn.functional as F\nclass Base(nn.Module):\n    def forward(self, x):\n        return self.head(F.dropout(self.body(x), 0.1))\n#                        ^^^^^^^^^^^^^^^^^^^^^^^^^^^^ functional-dropout-always-on\n',
+          'main.py': 'import torch.nn as nn\nfrom base import Base\nclass Net(Base):\n    def __init__(self):\n        super().__init__()\n        self.body = nn.Linear(4, 4)\n        self.head = nn.Linear(4, 2)\n',
+        },
+        output: 'import torch.nn as nn\nimport torch.nn.functional as F\nclass Base(nn.Module):\n    def forward(self, x):\n        return self.head(F.dropout(self.body(x), 0.1, training=self.training))\n',
+      },
     ],
   });
 });

@@ -75,6 +75,10 @@ test('norm-fit-before-split', async () => {
           if (!found[0].message.includes('`KFold.split(...)` (main.py:10) then cross-validates')) throw new Error(found[0].message);
         },
       },
+      {
+        name: 'fit on all rows outside a KFold loop, transform inside it',
+        code: `${SK}def folds(X, y):\n    scaler = StandardScaler().fit(X)\n#            ^^^^^^^^^^^^^^^^^^^^^^^ norm-fit-before-split:cv\n    for tr, te in KFold(n_splits=5, shuffle=True).split(X):\n        clf = LogisticRegression().fit(scaler.transform(X[tr]), y[tr])\n        print(clf.score(scaler.transform(X[te]), y[te]))\n`,
+      },
     ],
   });
 });

@@ -18,6 +18,10 @@ test('norm-momentum-convention', async () => {
         code: `${H}class M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.bn = nn.BatchNorm2d(8, momentum=0.5)\n    def forward(self, x):\n        return self.bn(x)\n`,
       },
       {
+        name: 'an init loop resets the momentum of every BatchNorm to a PyTorch value',
+        code: `${H}class M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.bn = nn.BatchNorm2d(8, momentum=0.99)\n        for m in self.modules():\n            if isinstance(m, nn.BatchNorm2d):\n                m.momentum = 0.01\n    def forward(self, x):\n        return self.bn(x)\n`,
+      },
+      {
         name: 'momentum=None is a cumulative average',
         code: `${H}class M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.bn = nn.BatchNorm1d(32, momentum=None)\n    def forward(self, x):\n        return self.bn(x)\n`,
       },
@@ -48,6 +52,14 @@ test('norm-momentum-convention', async () => {
           expect(found[0].message).toContain('BatchNorm2d `b.bn` has momentum=0.9 (set at main.py:3). In PyTorch');
           expect(found[0].message).toContain('every batch contributes 90%');
           expect(found[0].related[0].span.line).toBe(2);
+        },
+      },
+      {
+        name: 'momentum set in an init loop after construction',
+        code: `${H}class M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.bn = nn.BatchNorm1d(8)\n#                 ^^^^^^^^^^^^^^^^^ norm-momentum-convention\n        for m in self.modules():\n            if isinstance(m, nn.BatchNorm1d):\n                m.momentum = 0.9\n    def forward(self, x):\n        return self.bn(x)\n`,
+        output: `${H}class M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.bn = nn.BatchNorm1d(8)\n        for m in self.modules():\n            if isinstance(m, nn.BatchNorm1d):\n                m.momentum = 0.1\n    def forward(self, x):\n        return self.bn(x)\n`,
+        verify(found) {
+          expect(found[0].message).toContain('BatchNorm1d `bn` has momentum=0.9 (set at main.py:9).');
         },
       },
       {

@@ -8,13 +8,13 @@ import { show } from '../engine/values';
 import { INTERNAL_RULE, compareFindings } from '../engine/engine';
 import { LEVEL_RANK, type Finding, type FixKind } from '../engine/types';
 import { RULES, ruleById } from '../../../rules/index';
-import { collect, loadTree, sourceOf, walk, type Collected } from './load';
+import { collect, loadTree, sourceOf, walk } from './load';
 import { ConfigError, defaultConfig, discoverConfig, engineOptions, loadConfig, nearest, type ScanConfig } from './config';
 import { Baseline, BaselineError, baselinePath, writeBaseline } from './baseline';
 import { changedSince, GitError } from './git';
 import { fingerprints } from './fingerprint';
 import { applyFixesToFiles } from './fixer';
-import { defaultJobs, extractInWorkers, workerScript } from './pool';
+import { analyzeInWorkers, defaultJobs, workerScript } from './pool';
 import { Progress } from './progress';
 import { displayPath, jsonReport, summarize, toReportFinding, type Report } from './report';
 import { sarifReport } from './sarif';
@@ -145,37 +145,28 @@ function resolveConfig(explicit: string | undefined, firstRoot: string): ScanCon
   return loadConfig(found, ids, path.relative(process.cwd(), found) || found);
 }
 
-/** Reads sources into the engine: facts come from worker threads when `jobs` > 1 and the bundled worker exists. */
-async function loadSources(engine: Engine, c: Collected, jobs: number, progress: Progress): Promise<number> {
-  for (const d of c.data) engine.setDataFile(d.rel, d.text);
-  const sources = c.sources.map(sourceOf);
-  const script = workerScript();
-  if (jobs > 1 && script && sources.length > 1) {
-    const facts = await extractInWorkers(sources.map((s) => s.text), jobs, script, (done) => progress.update('parsing', done, sources.length));
-    sources.forEach((s, i) => engine.setFileFacts(s, facts[i]));
-    return Math.min(jobs, sources.length);
-  }
-  sources.forEach((s, i) => {
-    engine.setSource(s);
-    progress.update('parsing', i + 1, sources.length);
-  });
-  return 0;
-}
-
 /** Runs the rules file by file (for progress) with one shared Views; same dedupe and order as one analyze call. */
 function analyzeAll(engine: Engine, paths: readonly string[], progress: Progress): Finding[] {
   const views = new Views(engine.ws);
+  return mergeFindings(paths.map((p, i) => {
+    const found = engine.analyze([p], views);
+    progress.update('analysing', i + 1, paths.length);
+    return found;
+  }));
+}
+
+/** Per-file results in file order → one list: first copy of each finding kept, sorted stably (as Engine.analyze does). */
+function mergeFindings(perFile: readonly Finding[][]): Finding[] {
   const seen = new Set<string>();
   const out: Finding[] = [];
-  paths.forEach((p, i) => {
-    for (const f of engine.analyze([p], views)) {
+  for (const list of perFile) {
+    for (const f of list) {
       const key = `${f.rule}\0${f.path}\0${f.span.start}\0${f.span.end}\0${f.messageId}`;
       if (seen.has(key)) continue;
       seen.add(key);
       out.push(f);
     }
-    progress.update('analysing', i + 1, paths.length);
-  });
+  }
   return out.sort(compareFindings);
 }
 
@@ -202,16 +193,45 @@ async function scan(args: string[], io: Io): Promise<number> {
   const root = process.cwd();
   const collected = collect(root, walk(roots, { dir: cfg.dir, include: cfg.include, exclude: cfg.exclude }));
   const tRead = Date.now();
-  const workers = await loadSources(engine, collected, jobs, progress);
-  const paths = collected.sources.map((s) => s.rel);
-  const tFacts = Date.now();
-  let findings = analyzeAll(engine, paths, progress);
+  const sources = collected.sources.map(sourceOf);
+  const paths = sources.map((s) => s.path);
+  const script = workerScript();
+  let findings: Finding[];
+  let workers = 0;
+  // the main thread's engine: filled now when it runs the rules itself, later only if --fix needs it
+  let loadMain: () => void;
+  let mainLoaded = false;
+  if (jobs > 1 && script && sources.length > 1) {
+    const r = await analyzeInWorkers(script, jobs, sources, collected.data, engineOptions(cfg), paths, (phase, done, total) => progress.update(phase, done, total));
+    workers = r.workers;
+    findings = mergeFindings(r.findings);
+    loadMain = () => {
+      for (const d of collected.data) engine.setDataFile(d.rel, d.text);
+      const facts = r.facts();
+      sources.forEach((s, i) => engine.setFileFacts(s, facts[i]));
+    };
+  } else {
+    for (const d of collected.data) engine.setDataFile(d.rel, d.text);
+    sources.forEach((s, i) => {
+      engine.setSource(s);
+      progress.update('parsing', i + 1, sources.length);
+    });
+    mainLoaded = true;
+    loadMain = () => {};
+    findings = analyzeAll(engine, paths, progress);
+  }
   const tRules = Date.now();
   progress.done();
   for (const s of collected.skipped) io.err(`regwise: skipped ${s.path}: ${s.reason}\n`);
+  const byPath = new Map(sources.map((s) => [s.path, s]));
+  const src = (p: string) => (mainLoaded ? engine.ws.get(p)?.source : byPath.get(p));
 
   const inChanged = (rel: string) => !changed || changed.has(path.resolve(root, rel));
   if (fixKind) {
+    if (!mainLoaded) {
+      loadMain();
+      mainLoaded = true;
+    }
     const targets = collected.sources.filter((s) => inChanged(s.rel));
     const outcome = applyFixesToFiles(engine, targets, findings, fixKind);
     for (const a of outcome.applied) io.err(`regwise: fixed ${displayPath(root, a.path)}:${a.cell !== undefined ? `cell ${a.cell}:` : ''}${a.line} ${a.rule}: ${a.title}\n`);
@@ -221,7 +241,7 @@ async function scan(args: string[], io: Io): Promise<number> {
   }
   if (changed) findings = findings.filter((f) => inChanged(f.path));
 
-  const textOf = (p: string) => engine.ws.get(p)?.source.text ?? '';
+  const textOf = (p: string) => src(p)?.text ?? '';
   const prints = fingerprints(findings, textOf, (p) => displayPath(root, p));
   const entryOf = (f: Finding, i: number, file: string) => ({ rule: f.rule, path: baselinePath(file, path.resolve(root, f.path)), hash: prints[i].code });
   const writeTo = flags.values.get('write-baseline');
@@ -246,17 +266,17 @@ async function scan(args: string[], io: Io): Promise<number> {
     kept = kept.filter(({ f }) => f.rule === INTERNAL_RULE);
   }
   const shown = kept.map(({ f }) => f);
-  const reportFindings = kept.map(({ f, i }) => toReportFinding(engine, root, f, prints[i].full));
+  const reportFindings = kept.map(({ f, i }) => toReportFinding(src, root, f, prints[i].full));
   const report: Report = { findings: reportFindings, skipped: collected.skipped, summary: summarize(reportFindings, collected.skipped, baselined) };
   const outFile = flags.values.get('output');
   const style = chooseStyle(!outFile && !!io.outTty, env);
   const text = format === 'json' ? jsonReport(report)
-    : format === 'sarif' ? sarifReport(engine, report, shown, RULES, readDoc, root)
-    : textReport(engine, report, shown, style);
+    : format === 'sarif' ? sarifReport(src, report, shown, RULES, readDoc, root)
+    : textReport(src, report, shown, style);
   if (outFile) fs.writeFileSync(outFile, text);
   else io.out(text);
   if (env.REGWISE_STATS) {
-    const phases = { walkRead: tRead - started, facts: tFacts - tRead, rules: tRules - tFacts, rest: Date.now() - tRules };
+    const phases = { walkRead: tRead - started, analyse: tRules - tRead, rest: Date.now() - tRules };
     io.err(`regwise-stats ${JSON.stringify({ ms: Date.now() - started, phases, files: paths.length, maxRssKB: process.resourceUsage().maxRSS, jobs, workers })}\n`);
   }
   const threshold = FAIL_RANK[failLevel];

@@ -1,10 +1,13 @@
-// Extracts file facts on worker threads (`--jobs N`); the main thread keeps the workspace and runs the rules.
+// `--jobs N`: worker threads extract facts for shares of the files, then each loads the whole workspace and checks a share.
 import * as fs from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
+import * as v8 from 'node:v8';
 import { Worker } from 'node:worker_threads';
 import type { FileFacts } from '../engine/facts';
-import type { FactsRequest, FactsResponse } from './worker';
+import type { SourceFile } from '../engine/source';
+import type { EngineOptions, Finding } from '../engine/types';
+import type { WorkerRequest, WorkerResponse } from './worker';
 
 export function defaultJobs(): number {
   return Math.max(1, typeof os.availableParallelism === 'function' ? os.availableParallelism() : os.cpus().length);
@@ -16,14 +19,14 @@ export function workerScript(): string | undefined {
   return fs.existsSync(p) ? p : undefined;
 }
 
-/** Roughly equal batches by text length, in input order, so results can be put back in place. */
-function batches(texts: readonly string[], target: number): number[][] {
+/** Consecutive batches of roughly `target` characters, so results can be put back in input order. */
+function batches(sizes: readonly number[], target: number): number[][] {
   const out: number[][] = [];
   let cur: number[] = [];
   let size = 0;
-  texts.forEach((t, i) => {
+  sizes.forEach((n, i) => {
     cur.push(i);
-    size += t.length;
+    size += n;
     if (size >= target) {
       out.push(cur);
       cur = [];
@@ -34,56 +37,132 @@ function batches(texts: readonly string[], target: number): number[][] {
   return out;
 }
 
-/**
- * Facts for every text, in order, computed by `jobs` worker threads. Each batch is handed to the next idle
- * worker; the answer for text i is always extractFacts(text i), so the result does not depend on scheduling.
- */
-export async function extractInWorkers(texts: readonly string[], jobs: number, script: string, onProgress?: (done: number) => void): Promise<FileFacts[]> {
-  const result: FileFacts[] = new Array(texts.length);
-  const total = texts.reduce((n, t) => n + t.length, 0);
-  const queue = batches(texts, Math.max(64 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
-  const n = Math.min(jobs, queue.length);
-  if (!n) return result;
-  let done = 0;
-  let next = 0;
-  const workers: Worker[] = [];
-  try {
-    await new Promise<void>((resolve, reject) => {
-      let finished = 0;
-      const pending = new Map<number, number[]>();
-      const feed = (w: Worker) => {
-        if (next >= queue.length) {
-          finished++;
-          if (finished === n) resolve();
-          return;
-        }
-        const id = next++;
-        pending.set(id, queue[id]);
-        const req: FactsRequest = { id, texts: queue[id].map((i) => texts[i]) };
-        w.postMessage(req);
-      };
-      for (let k = 0; k < n; k++) {
-        const w = new Worker(script, { workerData: { wasmDir: __dirname } });
-        workers.push(w);
-        w.on('message', (res: FactsResponse) => {
-          if (res.id >= 0) {
-            if (res.error || !res.facts) return reject(new Error(`worker failed: ${res.error ?? 'no facts'}`));
-            const idx = pending.get(res.id)!;
-            pending.delete(res.id);
-            idx.forEach((i, j) => (result[i] = res.facts![j]));
-            done += idx.length;
-            onProgress?.(done);
-          }
-          feed(w);
-        });
-        w.on('error', reject);
-        w.on('exit', (code) => {
-          if (code !== 0) reject(new Error(`worker exited with code ${code}`));
-        });
-      }
-    });
-  } finally {
-    await Promise.all(workers.map((w) => w.terminate()));
+type WithoutId<T> = T extends unknown ? Omit<T, 'id'> : never;
+
+type Pending = { resolve: (r: WorkerResponse) => void; reject: (e: Error) => void };
+
+class Pool {
+  private readonly workers: Worker[] = [];
+  private readonly waiting = new Map<Worker, Pending>();
+  private readonly ready: Promise<void>[] = [];
+  private nextId = 0;
+  private failed: Error | undefined;
+
+  constructor(script: string, n: number) {
+    for (let k = 0; k < n; k++) {
+      const w = new Worker(script, { workerData: { wasmDir: __dirname } });
+      this.workers.push(w);
+      this.ready.push(new Promise((resolve, reject) => {
+        w.once('message', (m: WorkerResponse) => (m.type === 'ready' ? resolve() : reject(new Error('worker did not start'))));
+        w.once('error', reject);
+      }));
+      w.on('error', (e) => this.fail(e instanceof Error ? e : new Error(String(e))));
+      w.on('exit', (code) => {
+        if (code !== 0 && !this.closing) this.fail(new Error(`worker exited with code ${code}`));
+      });
+    }
   }
-  return result;
+
+  private closing = false;
+
+  private fail(e: Error): void {
+    this.failed ??= e;
+    for (const p of this.waiting.values()) p.reject(e);
+    this.waiting.clear();
+  }
+
+  get size(): number {
+    return this.workers.length;
+  }
+
+  async start(): Promise<void> {
+    await Promise.all(this.ready);
+  }
+
+  /** One request to one worker; the worker answers requests in order, one at a time. */
+  ask(k: number, req: WithoutId<WorkerRequest>): Promise<WorkerResponse> {
+    if (this.failed) return Promise.reject(this.failed);
+    const w = this.workers[k];
+    const id = this.nextId++;
+    return new Promise((resolve, reject) => {
+      const onMessage = (m: WorkerResponse) => {
+        if (m.id !== id) return;
+        w.off('message', onMessage);
+        this.waiting.delete(w);
+        if (m.type === 'error') reject(new Error(`worker failed: ${m.error}`));
+        else resolve(m);
+      };
+      this.waiting.set(w, { resolve, reject });
+      w.on('message', onMessage);
+      w.postMessage({ ...req, id } as WorkerRequest);
+    });
+  }
+
+  /** Runs `jobs` through the workers, each job to the next idle worker. */
+  async each<T>(jobs: readonly T[], run: (k: number, job: T) => Promise<void>): Promise<void> {
+    let next = 0;
+    await Promise.all(this.workers.map(async (_w, k) => {
+      while (next < jobs.length) await run(k, jobs[next++]);
+    }));
+  }
+
+  async close(): Promise<void> {
+    this.closing = true;
+    await Promise.all(this.workers.map((w) => w.terminate()));
+  }
+}
+
+export interface ParallelResult {
+  /** Per target path, in the order given, what `engine.analyze([path], views)` returned in a worker. */
+  findings: Finding[][];
+  /** Decodes the facts of every source (for the main thread's own engine, e.g. for --fix); in source order. */
+  facts(): FileFacts[];
+  workers: number;
+}
+
+/**
+ * Extracts facts in `jobs` workers, loads the full workspace into each, and analyses `targets` spread over them.
+ * Every answer is a pure function of the workspace and the target, so scheduling cannot change the result.
+ */
+export async function analyzeInWorkers(
+  script: string,
+  jobs: number,
+  sources: readonly SourceFile[],
+  data: readonly { rel: string; text: string }[],
+  options: EngineOptions,
+  targets: readonly string[],
+  onProgress?: (phase: string, done: number, total: number) => void,
+): Promise<ParallelResult> {
+  const total = sources.reduce((n, s) => n + s.text.length, 0);
+  const factBatches = batches(sources.map((s) => s.text.length), Math.max(32 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
+  const pool = new Pool(script, Math.max(1, Math.min(jobs, factBatches.length)));
+  try {
+    await pool.start();
+    const buffers: Uint8Array[] = new Array(factBatches.length);
+    let parsed = 0;
+    await pool.each(factBatches.map((b, i) => ({ b, i })), async (k, { b, i }) => {
+      const r = await pool.ask(k, { type: 'facts', texts: b.map((j) => sources[j].text) });
+      if (r.type !== 'facts') throw new Error('unexpected worker answer');
+      buffers[i] = r.facts;
+      parsed += b.length;
+      onProgress?.('parsing', parsed, sources.length);
+    });
+    // every worker gets the whole workspace: rules see cross-file facts exactly as a single thread would
+    await Promise.all(Array.from({ length: pool.size }, (_, k) => pool.ask(k, { type: 'load', sources: [...sources], facts: buffers, data: [...data], options })));
+    const findings: Finding[][] = new Array(targets.length);
+    const chunk = Math.max(1, Math.ceil(targets.length / (pool.size * 16)));
+    const chunks: number[][] = [];
+    for (let i = 0; i < targets.length; i += chunk) chunks.push(Array.from({ length: Math.min(chunk, targets.length - i) }, (_, j) => i + j));
+    let checked = 0;
+    await pool.each(chunks, async (k, idx) => {
+      const r = await pool.ask(k, { type: 'analyze', targets: idx.map((i) => targets[i]) });
+      if (r.type !== 'analyzed') throw new Error('unexpected worker answer');
+      idx.forEach((i, j) => (findings[i] = r.findings[j]));
+      checked += idx.length;
+      onProgress?.('analysing', checked, targets.length);
+    });
+    return { findings, facts: () => buffers.flatMap((b) => v8.deserialize(b) as FileFacts[]), workers: pool.size };
+  } finally {
+    await pool.close();
+  }
 }

@@ -1,6 +1,5 @@
 // The scanner's report model: engine findings turned into display positions (cells for notebooks) and the JSON report.
 import * as path from 'node:path';
-import type { Engine } from '../engine/engine';
 import { toCell, type SourceFile } from '../engine/source';
 import type { Finding, Level } from '../engine/types';
 import type { Span } from '../engine/ir';
@@ -89,8 +88,10 @@ export function position(root: string, file: SourceFile | undefined, p: string, 
   };
 }
 
-export function toReportFinding(engine: Engine, root: string, f: Finding, fingerprint: string): ReportFinding {
-  const src = (p: string) => engine.ws.get(p)?.source;
+/** The analysed program of a path (after fixes, when any were applied). */
+export type SourceLookup = (path: string) => SourceFile | undefined;
+
+export function toReportFinding(src: SourceLookup, root: string, f: Finding, fingerprint: string): ReportFinding {
   return {
     rule: f.rule,
     level: f.level,

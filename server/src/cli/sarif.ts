@@ -1,9 +1,8 @@
 // The SARIF 2.1.0 report (OASIS): rule descriptors with their docs, results with stable fingerprints and fixes.
-import type { Engine } from '../engine/engine';
 import { INTERNAL_RULE } from '../engine/engine';
 import type { Rule } from '../engine/rule';
 import type { Finding, Level } from '../engine/types';
-import type { Report, ReportFinding, Position } from './report';
+import type { Report, ReportFinding, Position, SourceLookup } from './report';
 import { offsetToPoint } from './report';
 import { INFORMATION_URI, TOOL_NAME, VERSION } from './version';
 
@@ -69,14 +68,14 @@ function physical(p: Position) {
   return { physicalLocation: { artifactLocation, region: { startLine: p.line, startColumn: p.column, endLine: p.endLine, endColumn: p.endColumn } } };
 }
 
-function sarifFixes(engine: Engine, f: ReportFinding, o: Finding) {
+function sarifFixes(src: SourceLookup, f: ReportFinding, o: Finding) {
   if (isNotebook(f)) return undefined;
   const out = f.fixes.flatMap((fix, i) => {
     const edits = o.fixes[i].edits;
-    if (edits.some((e) => engine.ws.get(e.path)?.source.cells)) return [];
+    if (edits.some((e) => src(e.path)?.cells)) return [];
     const byPath = new Map<string, { deletedRegion: object; insertedContent: { text: string } }[]>();
     fix.edits.forEach((e, j) => {
-      const text = engine.ws.get(edits[j].path)?.source.text ?? '';
+      const text = src(edits[j].path)?.text ?? '';
       const a = offsetToPoint(text, edits[j].start);
       const b = offsetToPoint(text, edits[j].end);
       const list = byPath.get(e.path) ?? [];
@@ -91,13 +90,13 @@ function sarifFixes(engine: Engine, f: ReportFinding, o: Finding) {
   return out.length ? out : undefined;
 }
 
-export function sarifReport(engine: Engine, report: Report, originals: readonly Finding[], rules: readonly Rule[], readDoc: (id: string) => string | undefined, cwd: string): string {
+export function sarifReport(src: SourceLookup, report: Report, originals: readonly Finding[], rules: readonly Rule[], readDoc: (id: string) => string | undefined, cwd: string): string {
   const descriptors = [...rules.map((r) => descriptor(r, readDoc(r.meta.id))), INTERNAL_DESCRIPTOR];
   const index = new Map(descriptors.map((d, i) => [d.id, i]));
   const results = report.findings.map((f, i) => {
     const o = originals[i];
     const loc = physical(f);
-    const fixes = sarifFixes(engine, f, o);
+    const fixes = sarifFixes(src, f, o);
     return {
       ruleId: f.rule,
       ...(index.has(f.rule) ? { ruleIndex: index.get(f.rule) } : {}),

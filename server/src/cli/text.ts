@@ -1,7 +1,6 @@
 // The human report: `path:line:col level rule message`, the code line with a caret underline, then a summary.
-import type { Engine } from '../engine/engine';
 import type { Finding, Level } from '../engine/types';
-import type { Position, Report } from './report';
+import type { Position, Report, SourceLookup } from './report';
 
 export interface Style {
   bold(s: string): string;
@@ -35,12 +34,12 @@ function where(f: Position): string {
   return f.cell !== undefined ? `${f.path}:cell ${f.cell}:${f.line}:${f.column}` : `${f.path}:${f.line}:${f.column}`;
 }
 
-export function textReport(engine: Engine, report: Report, originals: readonly Finding[], style: Style): string {
+export function textReport(src: SourceLookup, report: Report, originals: readonly Finding[], style: Style): string {
   const out: string[] = [];
   report.findings.forEach((f, i) => {
     const o = originals[i];
     out.push(`${style.bold(where(f))} ${style.level(f.level, f.level)} ${f.rule} ${f.message}`);
-    const text = engine.ws.get(o.path)?.source.text;
+    const text = src(o.path)?.text;
     if (text !== undefined && o.rule !== 'internal-error') out.push(...excerpt(text, o.span.line, o.span.col, o.span.endLine, o.span.endCol, f.line, style));
     for (const r of f.related) out.push(`      ${style.dim('related:')} ${where(r)} ${r.message}`);
     const fix = f.fixes[0];

@@ -449,6 +449,12 @@ export class Interp {
       else {
         const i = obj.m.children.findIndex(([n]) => n === attr);
         if (i >= 0 && v.t === 'none') obj.m.children.splice(i, 1);
+        // `m.momentum = 0.01` in an init loop changes what the layer was constructed with
+        if (obj.m.kind === 'leaf' && obj.m.args.has(attr)) {
+          obj.m.args.set(attr, v);
+          obj.m.given.add(attr);
+          return;
+        }
         obj.m.attrs.set(attr, v);
       }
     } else if (obj.t === 'obj') obj.state.set(attr, v);
@@ -629,7 +635,9 @@ export class Interp {
         if (r !== undefined && (op === 'is not' || op === '!=')) r = !r;
       } else if (op === 'in' || op === 'not in') {
         const items = b.t === 'dict' ? [...b.map.keys()].map((k) => ({ t: 'str', v: k }) as Value) : this.iterate(b);
-        if (!items || a.t !== 'str' && a.t !== 'num') r = undefined;
+        // `'head' in name` on strings is a substring test, not membership of one character
+        if (a.t === 'str' && b.t === 'str') r = b.v.includes(a.v);
+        else if (!items || a.t !== 'str' && a.t !== 'num') r = undefined;
         else r = items.some((x) => (x.t === 'str' || x.t === 'num') && x.v === a.v);
         if (r !== undefined && op === 'not in') r = !r;
       } else {

@@ -160,6 +160,24 @@ def partner_dependence(norm, batch):
         return maxdiff(norm(xa)[0], norm(xb)[0])
 
 
+def bn_raises(norm, shape, train=True):
+    norm.train(train)
+    try:
+        norm(torch.randn(*shape))
+        return None
+    except ValueError as err:
+        return str(err)
+
+
+out["batch_of_one"] = {
+    "bn1d_train_batch_1": bn_raises(nn.BatchNorm1d(8), (1, 8)),
+    "bn1d_train_batch_2": bn_raises(nn.BatchNorm1d(8), (2, 8)),
+    "bn1d_eval_batch_1": bn_raises(nn.BatchNorm1d(8), (1, 8), train=False),
+    "bn2d_train_batch_1_spatial_4x4": bn_raises(nn.BatchNorm2d(8), (1, 8, 4, 4)),
+    "bn2d_train_batch_1_spatial_1x1": bn_raises(nn.BatchNorm2d(8), (1, 8, 1, 1)),
+}
+out["sources"]["batch_of_one"] = "torch/nn/functional.py batch_norm (_verify_batch_size): 'Expected more than 1 value per channel when training'"
+
 out["tiny_batch"] = {
     "bn2d_sample0_change_when_partners_change_batch_2": partner_dependence(nn.BatchNorm2d(8), 2),
     "bn2d_sample0_change_when_partners_change_batch_32": partner_dependence(nn.BatchNorm2d(8), 32),

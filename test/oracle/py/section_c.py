@@ -1,12 +1,17 @@
 #!/usr/bin/python3
 """Oracle for RULES.md section C (data pipeline): measured facts of scikit-learn and torchvision.
 
-    /usr/bin/python3 test/oracle/py/section_c.py
+    /usr/bin/python3 test/oracle/py/section_c.py [--refit-sample FIXED_DIR]
 
 Prints one JSON object of measurements; no pass/fail decision is made here.
+With --refit-sample, FIXED_DIR holds samples/hive_health/train.py as Regwise's fix left it (next to copies of
+model.py and prep.py); its holdout_logreg() and the unfixed sample's are run on the same data and compared with
+a Pipeline fitted on the same training part.
 """
 
+import importlib.util
 import json
+import os
 import sys
 import time
 
@@ -15,9 +20,10 @@ from sklearn import __version__ as sklearn_version
 from sklearn.ensemble import GradientBoostingClassifier
 from sklearn.feature_selection import SelectKBest
 from sklearn.linear_model import LogisticRegression
+from sklearn.metrics import accuracy_score
 from sklearn.model_selection import KFold, cross_val_score, train_test_split
 from sklearn.pipeline import make_pipeline
-from sklearn.preprocessing import StandardScaler
+from sklearn.preprocessing import Normalizer, StandardScaler
 
 out = {"sklearn": sklearn_version, "sources": {}}
 t0 = time.time()
@@ -48,6 +54,17 @@ out["selection_before_cv"] = {
     "leaky_mean_accuracy": float(leaky.mean()),
     "pipeline_mean_accuracy": float(inside.mean()),
 }
+# The same documentation example as printed there: one train_test_split(random_state=42) after selecting on all
+# rows, GradientBoostingClassifier(random_state=1), accuracy on the test part; then the Pipeline version.
+X_tr, X_te, y_tr, y_te = train_test_split(X_selected, y, random_state=42)
+leaky_split = accuracy_score(y_te, GradientBoostingClassifier(random_state=1).fit(X_tr, y_tr).predict(X_te))
+X_tr, X_te, y_tr, y_te = train_test_split(X, y, random_state=42)
+pipe_split = make_pipeline(SelectKBest(k=25), GradientBoostingClassifier(random_state=1)).fit(X_tr, y_tr)
+out["selection_before_split"] = {
+    "leaky_accuracy": float(leaky_split),
+    "pipeline_accuracy": float(accuracy_score(y_te, pipe_split.predict(X_te))),
+    "test_chance_level": float(max(np.bincount(y_te)) / len(y_te)),
+}
 out["sources"]["selection_before_cv"] = "scikit-learn docs 'Common pitfalls and recommended practices' (data leakage); Kaufman et al. 2012"
 
 
@@ -67,6 +84,10 @@ out["fit_before_split"] = {
     "train_fit_mean_change_when_holdout_changes": maxabs(part_a.mean_ - part_b.mean_),
     "train_fit_scale_change_when_holdout_changes": maxabs(part_a.scale_ - part_b.scale_),
 }
+# Normalizer rescales each row by its own norm: fitted on all rows or on the training part, the held-out rows
+# come out the same (why norm-fit-before-split leaves it alone).
+out["fit_before_split"]["normalizer_full_vs_train_fit_max_abs_diff"] = maxabs(
+    Normalizer().fit(D).transform(D[hold_idx]) - Normalizer().fit(D[train_idx]).transform(D[hold_idx]))
 out["sources"]["fit_before_split"] = "scikit-learn docs 'Common pitfalls and recommended practices'; scikit-learn docs StandardScaler (mean_, scale_)"
 
 
@@ -158,6 +179,55 @@ else:
         "normalize_formula_max_abs_error": float((f1 - (n - torch.tensor(mean)[:, None, None]) / torch.tensor(std)[:, None, None]).abs().max()),
     }
     out["sources"]["torchvision"] = "torchvision docs transforms.Normalize ((x - mean[c]) / std[c]), RandomResizedCrop, RandomHorizontalFlip; ImageNet constants (common practice)"
+
+# --- Regwise's own fix for norm-refit-on-holdout, run on the sample it was made for -----------------------
+def holdout_logreg_run(folder, X, y):
+    """Imports FOLDER/train.py and runs holdout_logreg(X, y), recording the split it made and the test rows' probabilities."""
+    for name in ("model", "prep"):
+        sys.modules.pop(name, None)
+    sys.path.insert(0, folder)
+    try:
+        spec = importlib.util.spec_from_file_location(f"hive_train_{len(out)}_{abs(hash(folder))}", os.path.join(folder, "train.py"))
+        mod = importlib.util.module_from_spec(spec)
+        spec.loader.exec_module(mod)
+    finally:
+        sys.path.remove(folder)
+    seen = {}
+    real_split = mod.train_test_split
+
+    def recording_split(*a, **k):
+        seen["split"] = real_split(*a, **k)
+        return seen["split"]
+
+    class RecordingLogisticRegression(mod.LogisticRegression):
+        def score(self, X, y, sample_weight=None):
+            seen["proba"] = self.predict_proba(X)
+            seen["params"] = self.get_params()
+            return super().score(X, y, sample_weight)
+
+    mod.train_test_split = recording_split
+    mod.LogisticRegression = RecordingLogisticRegression
+    acc = mod.holdout_logreg(X, y)
+    X_train, X_test, y_train, y_test = seen["split"]
+    pipe = make_pipeline(StandardScaler(), LogisticRegression(**seen["params"])).fit(X_train, y_train)
+    return {
+        "accuracy": float(acc),
+        "pipeline_accuracy": float(pipe.score(X_test, y_test)),
+        "predict_proba_max_abs_diff_vs_pipeline": maxabs(seen["proba"] - pipe.predict_proba(X_test)),
+    }
+
+
+if "--refit-sample" in sys.argv:
+    fixed_dir = sys.argv[sys.argv.index("--refit-sample") + 1]
+    sample_dir = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "..", "samples", "hive_health")
+    hrng = np.random.RandomState(3)
+    Xh = hrng.normal(5.0, 2.0, size=(160, 12)) * np.linspace(0.5, 20.0, 12)
+    yh = (Xh[:, 11] / 20.0 + Xh[:, 0] / 4.0 + hrng.normal(scale=0.8, size=160) > 3.0).astype(int) + (Xh[:, 3] > 20.0).astype(int)
+    out["refit_fix_sample"] = {
+        "original": holdout_logreg_run(os.path.abspath(sample_dir), Xh, yh),
+        "fixed": holdout_logreg_run(os.path.abspath(fixed_dir), Xh, yh),
+    }
+    out["sources"]["refit_fix_sample"] = "scikit-learn docs 'Common pitfalls and recommended practices' (Inconsistent preprocessing); scikit-learn docs Pipeline"
 
 out["seconds"] = round(time.time() - t0, 2)
 json.dump(out, sys.stdout, indent=1)

@@ -70,7 +70,8 @@ export function activationProfile(g: ModelGraph): ActivationProfile {
   const seenCalls = new Set<CallExpr>();
   let unknownOps = false;
   for (const c of g.calls) {
-    if (!tensorCallName(c) && (c.callee.t === 'obj' || c.callee.t === 'ext' || c.callee.t === 'unknown') && c.args.some((a) => a.t === 'tensor')) unknownOps = true;
+    const opaqueCallee = c.callee.t === 'obj' || c.callee.t === 'unknown' || (c.callee.t === 'ext' && !c.callee.q.startsWith('builtins.'));
+    if (!tensorCallName(c) && opaqueCallee && c.args.some((a) => a.t === 'tensor')) unknownOps = true;
     const q = tensorCallName(c);
     const lab = q && callLabel(q);
     if (!lab || seenCalls.has(c.call)) continue;

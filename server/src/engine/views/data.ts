@@ -182,7 +182,8 @@ const ROW_PRESERVING_FUNCTIONS = new Set(['numpy.asarray', 'numpy.array', 'numpy
 /** Array methods whose result holds the same rows. */
 const ROW_PRESERVING_METHODS = new Set(['astype', 'copy', 'to', 'float', 'double', 'half', 'long', 'int', 'numpy', 'cpu', 'cuda',
   'detach', 'clone', 'to_numpy', 'fillna', 'clip', 'abs', 'squeeze', 'unsqueeze', 'reshape', 'view', 'contiguous', 'type',
-  'round', 'replace', 'drop', 'rename', 'select_dtypes', 'assign', 'ffill', 'bfill', 'interpolate', 'log1p', 'sqrt']);
+  'round', 'replace', 'drop', 'rename', 'select_dtypes', 'assign', 'ffill', 'bfill', 'interpolate', 'log1p', 'sqrt',
+  'ravel', 'flatten']);
 /** Attributes of a fitted scaler that hold its statistics. */
 const STAT_ATTRS = new Set(['mean_', 'scale_', 'var_', 'center_', 'data_min_', 'data_max_', 'data_range_', 'min_', 'statistics_']);
 /** torchvision dataset classes that take `transform` as a positional argument, and its index. */
@@ -508,7 +509,8 @@ export class DataView {
       }
       case 'attr': {
         const o = this.dv(e.obj, b, out);
-        if (o?.d === 'array' && (e.attr === 'values' || e.attr === 'data' || e.attr === 'T')) return this.derived(o);
+        // same rows: `.values`, `.data`, and pandas' row indexers (`df.iloc[:n]` is then sliced like an array)
+        if (o?.d === 'array' && ['values', 'data', 'T', 'iloc', 'loc'].includes(e.attr)) return this.derived(o);
         if (o?.d === 'pre' && STAT_ATTRS.has(e.attr)) {
           const last = o.pre.fits[o.pre.fits.length - 1];
           if (last && o.pre.learns) return { d: 'stats', rows: last.rows, call: last.call, path: last.path, dataText: last.dataText, fit: last };
@@ -714,9 +716,11 @@ export class DataView {
         if (x) return this.derived(x);
       }
     }
-    // a dataset built with a transform, here or in a helper the interpreter followed
+    // a dataset built with a transform, or a preprocessor, here or in a helper the interpreter followed
     const ds = this.datasetOf(e, rec, b, out);
     if (ds) return ds;
+    const made = rec.result.t === 'obj' ? this.preprocessorOf(rec.result) : undefined;
+    if (made) return { d: 'pre', pre: made };
     return this.freshArray();
   }
 

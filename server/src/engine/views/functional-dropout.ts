@@ -2,7 +2,7 @@
 // interpreter: which function, its rate, whether `training=` is given, and the method's `self` name for fixes.
 import type { CallExpr, Expr } from '../ir';
 import type { FuncInfo, ModuleInst, Value } from '../values';
-import { callArg, type ForwardCall, type ModelGraph } from './model-graph';
+import { callArg, type ForwardCall, type ModelGraph, type ModelGraphs } from './model-graph';
 
 /** The functional dropouts and their `training` default (torch/nn/functional.py). */
 export const FUNCTIONAL_DROPOUTS: ReadonlyMap<string, { trainingDefault: boolean; alpha: boolean }> = new Map([
@@ -58,4 +58,29 @@ export function functionalDropouts(g: ModelGraph): FunctionalDropout[] {
     out.push(describe(fc, fc.q));
   }
   return out;
+}
+
+const byPathCache = new WeakMap<ModelGraphs, Map<string, FunctionalDropout[]>>();
+
+/**
+ * Functional dropout calls located in `path`, traced through any model of the workspace (a base class's forward in
+ * this file may only be traceable through a subclass elsewhere). Built once per analysis.
+ */
+export function functionalDropoutsIn(models: ModelGraphs, path: string): FunctionalDropout[] {
+  let index = byPathCache.get(models);
+  if (!index) {
+    index = new Map();
+    const seen = new Set<string>();
+    for (const g of models.all()) {
+      for (const d of functionalDropouts(g)) {
+        // the first model that reaches a call in a module method describes it
+        const key = `${d.path}\0${d.call.span.start}\0${d.method ? 'm' : '-'}`;
+        if (seen.has(key)) continue;
+        seen.add(key);
+        index.set(d.path, [...(index.get(d.path) ?? []), d]);
+      }
+    }
+    byPathCache.set(models, index);
+  }
+  return index.get(path) ?? [];
 }

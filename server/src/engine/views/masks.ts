@@ -5,7 +5,7 @@ import type { CallExpr, Expr, Span, Stmt } from '../ir';
 import { exprChildren, stmtBlocks, stmtExprs, walkExpr, walkStmts } from '../ir';
 import type { Interp } from '../interp';
 import type { FuncInfo } from '../values';
-import { tensorCallName, type ModelGraph } from './model-graph';
+import { tensorCallName, type ModelGraph, type ModelGraphs } from './model-graph';
 
 /** Library calls whose result is already a 0/1 mask. */
 const BERNOULLI = new Set(['torch.bernoulli', 'tensor.bernoulli', 'tensor.bernoulli_', 'torch.Tensor.bernoulli_', 'torch.Tensor.bernoulli']);
@@ -229,6 +229,9 @@ class FnFlow {
       const ib = this.info(b);
       if (!!ia?.mask === !!ib?.mask) return;
       const [mask, mi, other] = ia?.mask ? [a, ia, b] : [b, ib!, a];
+      // a mask times a parameter or buffer (`self.weight * m`, `v * self.v_bias` in a Bernoulli sampler) is not
+      // dropout on activations; precision first
+      if (other.k === 'attr' && other.obj.k === 'name') return;
       const rescaled = mi.rescaled || this.divides(other) || (site.k !== 'augassign' && this.rescaledAbove(site as Expr));
       out.push({ site, span, mask, rescaled });
     };
@@ -381,4 +384,31 @@ export function maskApplications(g: ModelGraph, interp: Interp): MaskApplication
     }
   }
   return out;
+}
+
+const byPathCache = new WeakMap<ModelGraphs, Map<string, MaskApplication[]>>();
+
+/**
+ * Mask multiplications located in `path`, over every model of the workspace: a function that runs under several
+ * models (a block alone and inside a network) is one site, gated if any model's callers gate it. Built once.
+ */
+export function maskApplicationsIn(models: ModelGraphs, interp: Interp, path: string): MaskApplication[] {
+  let index = byPathCache.get(models);
+  if (!index) {
+    const bySite = new Map<string, MaskApplication>();
+    for (const g of models.all()) {
+      for (const a of maskApplications(g, interp)) {
+        const key = `${a.path}\0${a.span.start}\0${a.span.end}`;
+        const cur = bySite.get(key);
+        if (cur) {
+          cur.gated ||= a.gated;
+          cur.rescaled ||= a.rescaled;
+        } else bySite.set(key, { ...a });
+      }
+    }
+    index = new Map();
+    for (const a of bySite.values()) index.set(a.path, [...(index.get(a.path) ?? []), a]);
+    byPathCache.set(models, index);
+  }
+  return index.get(path) ?? [];
 }

@@ -197,6 +197,11 @@ const FRAMEWORK_EVAL_HOOKS = new Set([
 const LIGHTNING = new Set(['lightning.LightningModule', 'pytorch_lightning.LightningModule', 'lightning.pytorch.LightningModule', 'pytorch_lightning.core.LightningModule', 'pytorch_lightning.core.module.LightningModule']);
 
 const MAX_SUMMARY_DEPTH = 12;
+/** Statements one walk may visit (loops are re-walked to a fixed point; nesting multiplies the passes). */
+const MAX_WALK_STEPS = 100_000;
+
+/** Thrown when a walk runs out of budget: the function then has no summary, which keeps its callers quiet. */
+class WalkBudget extends Error {}
 /** nn.Module and tensor methods: calling them is not a forward pass. */
 const MODULE_METHODS = new Set([
   'parameters', 'named_parameters', 'state_dict', 'load_state_dict', 'to', 'cuda', 'cpu', 'zero_grad', 'apply', 'modules',
@@ -288,7 +293,8 @@ export class TrainingView {
     let s: Summary | undefined;
     try {
       s = new Walker(this, fn.path, fn, depth).run();
-    } catch (err) { if (process.env.RW_DEBUG) console.error("walker", fn.name, err);
+    } catch {
+      // a function the walker cannot follow has no summary: its callers see no switches from it
       s = undefined;
     }
     this.summaries.set(fn.stmt, s ?? null);
@@ -406,7 +412,9 @@ class Walker {
   private region: { site: Site; insertBefore: Stmt } | undefined;
   private state: State | null = { modes: new Map(), alias: new Map() };
   private record = true;
-  private synth = 0;
+  private steps = 0;
+  /** Modules switched in ways the view cannot follow (a loop over `model.modules()`): unknown from then on. */
+  private readonly lost = new Set<string>();
   private readonly fnName: string;
   private readonly quietEvals: boolean;
 
@@ -476,6 +484,7 @@ class Walker {
 
   private read(key: string, st: State | null = this.state): Mode {
     if (!st) return UNKNOWN_MODE;
+    for (const l of this.lost) if (key === l || key.startsWith(`${l}.`)) return UNKNOWN_MODE;
     for (let k = key; ; ) {
       const m = st.modes.get(k);
       if (m) return m;
@@ -488,6 +497,7 @@ class Walker {
 
   private set(key: string, m: Mode): void {
     if (!this.state) return;
+    for (const l of [...this.lost]) if (l === key || l.startsWith(`${key}.`)) this.lost.delete(l);
     for (const k of [...this.state.modes.keys()]) if (k.startsWith(`${key}.`)) this.state.modes.delete(k);
     this.state.modes.set(key, m);
   }
@@ -537,6 +547,7 @@ class Walker {
   }
 
   private execStmt(s: Stmt): void {
+    if (++this.steps > MAX_WALK_STEPS) throw new WalkBudget('training view: walk budget exhausted');
     switch (s.k) {
       case 'expr':
         this.bareSwitch(s);
@@ -549,7 +560,15 @@ class Walker {
         this.savedTraining(s);
         const cls = this.classify(s.value);
         this.interpExec(s);
-        for (const t of s.targets) this.bind(t, cls);
+        for (const t of s.targets) {
+          // `a, b = Net(), Net()`: each name gets its own item
+          const v = s.value;
+          if ((t.k === 'tuple' || t.k === 'list') && (v.k === 'tuple' || v.k === 'list') && t.items.length === v.items.length) {
+            const vals = v.items;
+            t.items.forEach((ti, i) => this.bind(ti, this.classify(vals[i])));
+          } else if (t.k === 'tuple' || t.k === 'list') for (const n of targetNames(t)) this.bind({ k: 'name', id: n, span: t.span }, {});
+          else this.bind(t, cls);
+        }
         return;
       }
       case 'augassign':
@@ -659,7 +678,8 @@ class Walker {
     this.state = cur;
     this.execBlock(s.body);
     end = this.state;
-    this.state = this.joinStates([entry, end]);
+    // a loop known to run at least once leaves its end state; otherwise skipping it is a path too
+    this.state = s.k === 'for' && this.nonEmpty(s.iter) ? end : this.joinStates([entry, end]);
     this.loops.pop();
     this.loopInfo.pop();
     this.execBlock(s.orelse);
@@ -703,6 +723,7 @@ class Walker {
       const recvKey = this.keyOf(fn.obj);
       const attr = fn.attr;
       if (recvKey && (attr === 'eval' || attr === 'train') && this.modeSwitchArgsOk(c, attr)) {
+        if (this.loopVarSwitch(c, attr, recvKey)) return;
         const key = this.resolve(recvKey);
         this.set(key, this.switchMode(c, attr, key));
         return;
@@ -816,6 +837,66 @@ class Walker {
     }
   }
 
+  /**
+   * A switch on the target of an enclosing `for`: over a list of module expressions it switches each of them;
+   * over anything else (`model.modules()`, an unknown list) the modules named in the loop's iterable become unknown.
+   */
+  private loopVarSwitch(c: CallExpr, attr: 'eval' | 'train', recvKey: string): boolean {
+    const name = root(recvKey);
+    const loop = [...this.loops].reverse().find((l) => l.k === 'for' && targetNames(l.target).includes(name));
+    if (!loop || loop.k !== 'for') return false;
+    const rest = recvKey.slice(name.length);
+    const items = loop.target.k === 'name' ? this.loopListItems(name, loop) : undefined;
+    if (items && !rest) {
+      for (const e of items) {
+        const k = this.keyOf(e);
+        if (!k) continue;
+        const key = this.resolve(k);
+        this.set(key, this.switchMode(c, attr, key));
+      }
+      return true;
+    }
+    const seen = new Set<string>();
+    const mark = (e: Expr): void => {
+      const k = e.k === 'name' || e.k === 'attr' ? dottedName(e) : null;
+      if (k) {
+        seen.add(this.resolve(k));
+        return;
+      }
+      for (const x of exprChildren(e)) mark(x);
+    };
+    mark(loop.iter);
+    for (const k of seen) {
+      this.set(k, UNKNOWN_MODE);
+      this.lost.add(k);
+      // `model.modules()` → the receiver `model`
+      const i = k.lastIndexOf('.');
+      if (i > 0) {
+        this.set(k.slice(0, i), UNKNOWN_MODE);
+        this.lost.add(k.slice(0, i));
+      }
+    }
+    return true;
+  }
+
+  private nonEmpty(it: Expr): boolean {
+    if ((it.k === 'list' || it.k === 'tuple') && it.items.length && !it.items.some((x) => x.k === 'star')) return true;
+    if (it.k === 'name' && (this.lists.get(it.id)?.length ?? 0) > 0) return true;
+    if (it.k === 'call' && it.fn.k === 'attr' && ['modules', 'named_modules', 'parameters', 'named_parameters'].includes(it.fn.attr)) return true;
+    if (it.k === 'call') {
+      const callee = this.value(it.fn);
+      if (callee.t === 'ext' && (callee.q === 'builtins.range' || callee.q === 'builtins.enumerate')) {
+        try {
+          const v = this.view.interp.evalExpr(it, { ...this.frame, done: false });
+          return v.t === 'list' && v.items.length > 0;
+        } catch {
+          return false;
+        }
+      }
+    }
+    return false;
+  }
+
   /** `for p in X.parameters(): p.requires_grad = False` freezes X. */
   private parameterLoopFreeze(s: Extract<Stmt, { k: 'for' }>): void {
     const it = s.iter;
@@ -827,8 +908,8 @@ class Walker {
     if (freezes && k) this.freeze(it, k, it.fn.obj);
   }
 
-  private loopListItems(name: string): Expr[] | undefined {
-    const l = this.loops[this.loops.length - 1];
+  private loopListItems(name: string, loop?: Extract<Stmt, { k: 'for' | 'while' }>): Expr[] | undefined {
+    const l = loop ?? this.loops[this.loops.length - 1];
     if (l.k !== 'for' || l.target.k !== 'name' || l.target.id !== name) return undefined;
     if (l.iter.k === 'name') return this.lists.get(l.iter.id);
     if (l.iter.k === 'list' || l.iter.k === 'tuple') return l.iter.items;
@@ -1106,6 +1187,12 @@ class Walker {
   private src(span: Span): string {
     return this.text.slice(span.start, span.end);
   }
+}
+
+function targetNames(t: Expr): string[] {
+  if (t.k === 'name') return [t.id];
+  if (t.k === 'tuple' || t.k === 'list') return t.items.flatMap(targetNames);
+  return [];
 }
 
 function root(key: string): string {
