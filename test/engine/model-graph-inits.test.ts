@@ -2,6 +2,7 @@
 // in init loops, tensor-call links through forward (downstream), and the activation profile.
 import { describe, expect, test } from 'vitest';
 import { Views } from '../../server/src/engine/views';
+import { isTorchSubclass } from '../../server/src/engine/torch-catalog';
 import { activationProfile } from '../../server/src/engine/views/activations';
 import { ModelGraphs, isForwardCall, tensorCallName } from '../../server/src/engine/views/model-graph';
 import { engineFor, type Files } from '../helpers/rule-tester';
@@ -130,5 +131,26 @@ describe('named_modules() in init loops', () => {
       'M',
     );
     expect(initLine(g)).toEqual(['zeros_@9>head.0.weight']);
+  });
+});
+
+describe('isTorchSubclass', () => {
+  test('subclass facts of torch.nn (issubclass as measured with the Debian PyTorch)', () => {
+    const pairs: [string, string, boolean | undefined][] = [
+      ['torch.nn.LazyLinear', 'torch.nn.Linear', true],
+      ['torch.nn.LazyConv2d', 'torch.nn.Conv2d', true],
+      ['torch.nn.LazyBatchNorm2d', 'torch.nn.BatchNorm2d', false],
+      ['torch.nn.AlphaDropout', 'torch.nn.modules.dropout._DropoutNd', true],
+      ['torch.nn.FeatureAlphaDropout', 'torch.nn.modules.dropout._DropoutNd', true],
+      ['torch.nn.SyncBatchNorm', 'torch.nn.modules.batchnorm._BatchNorm', true],
+      ['torch.nn.InstanceNorm2d', 'torch.nn.modules.batchnorm._NormBase', true],
+      ['torch.nn.InstanceNorm2d', 'torch.nn.modules.batchnorm._BatchNorm', false],
+      ['torch.nn.Bilinear', 'torch.nn.Linear', false],
+      ['torch.nn.Sequential', 'torch.nn.Linear', false],
+      ['torch.nn.Conv2d', 'torch.nn.Module', true],
+      // a class the catalog does not describe: cannot tell
+      ['torch.nn.MultiheadAttention', 'torch.nn.Linear', undefined],
+    ];
+    expect(pairs.map(([t, b]) => isTorchSubclass(t, b))).toEqual(pairs.map(([, , want]) => want));
   });
 });

@@ -42,6 +42,25 @@ describe('imports', () => {
   });
 });
 
+describe('private module paths', () => {
+  test('torch.nn.modules.<file>.<Class> resolves to the public torch.nn name', async () => {
+    const { layers } = await graph(
+      [
+        'import torch.nn as nn',
+        'from torch.nn.modules.batchnorm import BatchNorm2d',
+        'class M(nn.Module):',
+        '    def __init__(self):',
+        '        super().__init__()',
+        '        self.a = nn.modules.conv.Conv2d(3, 8, 3)',
+        '        self.b = BatchNorm2d(8)',
+        '        self.c = nn.modules.batchnorm.BatchNorm2d(8)',
+      ].join('\n'),
+      'M',
+    );
+    expect(layers).toEqual(['a torch.nn.Conv2d@6', 'b torch.nn.BatchNorm2d@7', 'c torch.nn.BatchNorm2d@8']);
+  });
+});
+
 describe('norm_layer parameters and partial', () => {
   const block = (extra: string) => [
     'import torch.nn as nn',

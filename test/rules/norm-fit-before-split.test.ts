@@ -14,6 +14,13 @@ test('norm-fit-before-split', async () => {
         code: `${SK}def score(X, y):\n    pipe = make_pipeline(StandardScaler(), LogisticRegression())\n    X_train, X_test, y_train, y_test = train_test_split(X, y, random_state=0)\n    pipe.fit(X_train, y_train)\n    return pipe.score(X_test, y_test), cross_val_score(pipe, X, y, cv=5).mean()\n`,
       },
       {
+        name: 'a helper that scales what it is given, called on the training part only',
+        code: {
+          'prep.py': 'from sklearn.preprocessing import StandardScaler\n\ndef standardise(X):\n    return StandardScaler().fit_transform(X)\n',
+          'main.py': 'from sklearn.model_selection import train_test_split\nfrom prep import standardise\n\ndef run(X, y):\n    X_tr, X_te, y_tr, y_te = train_test_split(X, y)\n    return standardise(X_tr), y_tr\n',
+        },
+      },
+      {
         name: 'split first, then fit on the training part and transform the test part',
         code: `${SK}X = np.loadtxt("hives.csv", delimiter=",")\ny = X[:, -1]\nX_train, X_test, y_train, y_test = train_test_split(X[:, :-1], y, test_size=0.25)\nscaler = StandardScaler().fit(X_train)\nX_train = scaler.transform(X_train)\nX_test = scaler.transform(X_test)\n`,
       },
@@ -73,6 +80,16 @@ test('norm-fit-before-split', async () => {
         code: `${SK}def folds(X, y):\n    X = StandardScaler().fit_transform(X)\n#       ^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^ norm-fit-before-split:cv\n    scores = []\n    for tr, te in KFold(n_splits=5).split(X):\n        clf = LogisticRegression().fit(X[tr], y[tr])\n        scores.append(clf.score(X[te], y[te]))\n    return scores\n`,
         verify(found) {
           if (!found[0].message.includes('`KFold.split(...)` (main.py:10) then cross-validates')) throw new Error(found[0].message);
+        },
+      },
+      {
+        name: 'a helper in another file scales its argument; the caller splits the result',
+        code: {
+          'prep.py': 'from sklearn.preprocessing import StandardScaler\n\ndef standardise(X):\n    return StandardScaler().fit_transform(X)\n#          ^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^ norm-fit-before-split:split\n',
+          'main.py': 'from sklearn.model_selection import train_test_split\nfrom prep import standardise\n\ndef run(X, y):\n    X = standardise(X)\n    return train_test_split(X, y, test_size=0.2)\n',
+        },
+        verify(found) {
+          if (found[0].path !== 'prep.py' || !found[0].message.includes('(prep.py:4) fits StandardScaler on all rows of `X`, and `train_test_split(...)` (main.py:6)')) throw new Error(found[0].message);
         },
       },
       {

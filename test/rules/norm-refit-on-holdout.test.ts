@@ -69,6 +69,13 @@ test('norm-refit-on-holdout', async () => {
         output: `${SK}def folds(X, y):\n    scaler = StandardScaler()\n    for tr, te in KFold(n_splits=5).split(X):\n        a = scaler.fit_transform(X[tr])\n        b = scaler.transform(X[te])\n        print(LogisticRegression().fit(a, y[tr]).score(b, y[te]))\n`,
       },
       {
+        name: 'a helper that refits whatever it is given, called on the test part: reported in the helper, no fix',
+        code: `${SK}def scale(X):\n    return StandardScaler().fit_transform(X)\n#          ^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^ norm-refit-on-holdout:refit\ndef holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y)\n    return scale(X_train), scale(X_test)\n`,
+        verify(found) {
+          if (!found[0].message.includes('fits StandardScaler on `X_test`, the held-out part of `train_test_split(...)` (main.py:8)')) throw new Error(found[0].message);
+        },
+      },
+      {
         name: 'a second scaler fitted on the test part: nothing fitted on training under that name, no fix',
         code: `${SK}def holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y)\n    train_scaler = StandardScaler().fit(X_train)\n    test_scaler = StandardScaler()\n    X_test = test_scaler.fit_transform(X_test)\n#            ^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^ norm-refit-on-holdout:refit\n    return train_scaler.transform(X_train), X_test\n`,
       },

@@ -75,10 +75,10 @@ class GitIgnores {
   private readonly byDir = new Map<string, Ignore | null>();
   private readonly top: string;
 
-  constructor(start: string) {
+  constructor(start: string, topOverride?: string) {
     let dir = start;
     let top = start;
-    for (;;) {
+    for (; !topOverride; ) {
       if (fs.existsSync(path.join(dir, '.git'))) {
         top = dir;
         break;
@@ -87,7 +87,7 @@ class GitIgnores {
       if (up === dir) break;
       dir = up;
     }
-    this.top = top;
+    this.top = topOverride ?? top;
   }
 
   private rules(dir: string): Ignore | null {
@@ -140,7 +140,7 @@ export function walk(roots: string[], filter?: WalkFilter): string[] {
       return path.resolve(r);
     }
   });
-  const gi = new GitIgnores(realRoots[0] ?? process.cwd());
+  const repoIgnores = new GitIgnores(realRoots[0] ?? process.cwd());
   const inc = filter && filter.include.length ? ignore().add([...filter.include]) : undefined;
   const exc = filter && filter.exclude.length ? ignore().add([...filter.exclude]) : undefined;
   const relToFilter = (abs: string) => (filter ? toPosix(path.relative(filter.dir, abs)) : '');
@@ -155,6 +155,8 @@ export function walk(roots: string[], filter?: WalkFilter): string[] {
   };
   for (let ri = 0; ri < roots.length; ri++) {
     const top = path.resolve(roots[ri]);
+    // a folder named on the command line is scanned even if git ignores it; then only the .gitignore files inside it apply
+    const gi = repoIgnores.ignored(realRoots[ri], true) ? new GitIgnores(realRoots[ri], realRoots[ri]) : repoIgnores;
     const stack: { p: string; explicit: boolean; link?: boolean }[] = [{ p: top, explicit: true }];
     // links wait until the real files are seen, so a file reached both ways is reported under its own path
     const deferred: { p: string; explicit: boolean; link?: boolean }[] = [];

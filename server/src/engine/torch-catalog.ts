@@ -77,13 +77,13 @@ export const CONTAINERS = new Set(['torch.nn.Sequential', 'torch.nn.ModuleList',
 
 /** Module paths that re-export torch.nn's classes under longer names. */
 const ALIASES: [RegExp, string][] = [
-  [/^torch\.nn\.modules\.[a-z_]+\./, 'torch.nn.'],
-  [/^torch\.nn\.modules\./, 'torch.nn.'],
+  // torch.nn.modules.batchnorm.BatchNorm2d and torch.nn.modules.BatchNorm2d are torch.nn.BatchNorm2d;
+  // intermediate module paths (torch.nn.modules.batchnorm) stay as they are so attribute chains still resolve
+  [/^torch\.nn\.modules\.(?:[a-z_]+\.)?([A-Z]\w*)$/, 'torch.nn.$1'],
 ];
 
 export function canonical(q: string): string {
   for (const [re, to] of ALIASES) if (re.test(q)) return q.replace(re, to);
-  if (q.startsWith('torch.nn.functional.')) return q;
   return q;
 }
 

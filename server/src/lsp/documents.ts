@@ -64,6 +64,8 @@ export class LineIndex {
 export class PythonDocument {
   private index: LineIndex;
   tree: Tree | undefined;
+  /** How many updates reparsed reusing the old tree (the rest parsed from scratch); for tests and diagnostics. */
+  incrementalParses = 0;
 
   constructor(readonly uri: string, readonly path: string, public version: number, private content: string, private readonly parser: PythonParser) {
     this.index = new LineIndex(content);
@@ -101,7 +103,10 @@ export class PythonDocument {
     if (!full && old && edits.length) {
       // the tree was parsed from this.content: replay the ranged edits on it, then reparse reusing it
       const edited = editTree(old, this.content, edits);
-      this.tree = edited === text ? this.parser.parse(text, old) : this.parser.parse(text);
+      if (edited === text) {
+        this.tree = this.parser.parse(text, old);
+        this.incrementalParses++;
+      } else this.tree = this.parser.parse(text);
     } else {
       // a whole-text change: the old tree no longer matches any base text the edits refer to
       this.tree = this.parser.parse(text);

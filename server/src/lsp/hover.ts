@@ -5,6 +5,8 @@ import type { Rule } from '../engine/rule';
 import { originOf, pyRepr } from '../engine/values';
 import { ModelGraphs, type Layer, type ModelGraph } from '../engine/views/model-graph';
 import type { Views } from '../engine/views';
+import { isLoader, perDeviceBatch, unwrap, type Mode } from '../engine/views/training';
+import type { Thresholds } from '../engine/types';
 
 const HIDDEN_ARGS = new Set(['device', 'dtype']);
 const MAX_NAMES = 6;
@@ -71,10 +73,90 @@ function layerSection(hits: LayerHit[]): string[] {
   return out;
 }
 
-export function hoverMarkdown(views: Views, path: string, offset: number, findings: readonly Finding[], rules: readonly Rule[]): string | undefined {
+const inside = (span: { start: number; end: number }, offset: number) => span.start <= offset && offset <= span.end;
+
+/** A DataLoader built here: its batch size and where it came from, and what each model it trains sees per device. */
+function loaderSection(views: Views, path: string, offset: number, thresholds: Thresholds): string[] {
+  const out: string[] = [];
+  for (const p of views.training.pairs) {
+    const l = p.loader;
+    if (!isLoader(l) || !l.site || l.site.path !== path || !inside(l.site.call.span, offset)) continue;
+    const b = perDeviceBatch(p, thresholds.devicesPerProcess);
+    if (!out.length) {
+      out.push('**Regwise** · DataLoader');
+      if (b) {
+        const o = b.origin;
+        out.push('', `batch_size = ${b.batch}${b.defaulted ? ' (the DataLoader default)' : o ? ` (from ${basename(o.path)}:${o.line + 1}${o.what ? `, ${o.what}` : ''})` : ''}`);
+      }
+    }
+    const u = unwrap(p.model);
+    const model = u.inst ? `\`${shortType(u.inst.type)}\`` : 'the model';
+    const per = b?.perDevice !== undefined ? `${b.perDevice} sample${b.perDevice === 1 ? '' : 's'} per device per step` : 'an unknown number of samples per device';
+    const wrap = u.wrapper === 'ddp' ? ` under DistributedDataParallel${u.synced ? ' (SyncBatchNorm)' : ''}` : u.wrapper === 'dp' ? ' under nn.DataParallel' : '';
+    out.push(`- trains ${model}${wrap} in the loop at ${basename(p.loop.path)}:${p.loop.span.line + 1}: ${per}`);
+  }
+  return out;
+}
+
+function describeMode(m: Mode): string {
   const parts: string[] = [];
-  const hits = layersAt(views, path, offset);
-  if (hits.length) parts.push(...layerSection(hits));
+  if (m.t) parts.push('train mode');
+  for (const o of m.e) parts.push(`eval mode (set by \`${o.text}\` in \`${o.fn}\`, ${basename(o.report.path)}:${o.report.span.line + 1})`);
+  if (m.n) parts.push('whatever mode its caller left it in');
+  if (m.u) parts.push('a mode Regwise cannot follow');
+  return parts.join(' or ') || 'no known mode';
+}
+
+/** A mode switch here (what it reaches), or an evaluation region here (the module's mode inside it). */
+function modeSection(views: Views, path: string, offset: number): string[] {
+  const out: string[] = [];
+  const seen = new Set<string>();
+  for (const ev of views.training.evals) {
+    if (ev.region.path === path && inside(ev.region.span, offset)) {
+      const k = `r${ev.region.span.start}${ev.ref.key}`;
+      if (seen.has(k)) continue;
+      seen.add(k);
+      if (!out.length) out.push('**Regwise** · evaluation region');
+      out.push(`- \`${ev.ref.text}\` is in ${describeMode(ev.mode)} here`);
+    }
+    for (const o of ev.mode.e) {
+      if (o.report.path !== path || !inside(o.report.span, offset)) continue;
+      const k = `s${o.report.span.start}${ev.region.span.start}`;
+      if (seen.has(k)) continue;
+      seen.add(k);
+      if (!out.length) out.push(`**Regwise** · mode switch \`${o.text}\``);
+      out.push(`- puts the module in eval mode for the evaluation region in \`${ev.fnName}\` (${basename(ev.region.path)}:${ev.region.span.line + 1})`);
+    }
+  }
+  return out;
+}
+
+/** Runs one hover section; a view that fails leaves that section out instead of losing the whole hover. */
+function section(parts: string[], make: () => string[], onError: (err: unknown) => void): void {
+  try {
+    const lines = make();
+    if (lines.length) parts.push(...(parts.length ? ['', '---', ''] : []), ...lines);
+  } catch (err) {
+    onError(err);
+  }
+}
+
+export function hoverMarkdown(
+  views: Views,
+  path: string,
+  offset: number,
+  findings: readonly Finding[],
+  rules: readonly Rule[],
+  thresholds: Thresholds,
+  onError: (err: unknown) => void = () => undefined,
+): string | undefined {
+  const parts: string[] = [];
+  section(parts, () => {
+    const hits = layersAt(views, path, offset);
+    return hits.length ? layerSection(hits) : [];
+  }, onError);
+  section(parts, () => loaderSection(views, path, offset, thresholds), onError);
+  section(parts, () => modeSection(views, path, offset), onError);
   const here = findings.filter((f) => f.path === path && f.span.start <= offset && offset <= f.span.end);
   if (here.length) {
     if (!parts.length) parts.push('**Regwise**');

@@ -30,7 +30,8 @@ import type { PythonParser } from '../engine/parser';
 import type { Rule } from '../engine/rule';
 import { Views } from '../engine/views';
 import { chooseFixes, applyFixesOnce, fixUntilStable } from '../engine/fix';
-import type { Finding } from '../engine/types';
+import type { EngineOptions, Finding } from '../engine/types';
+import { discoverConfig, engineOptions, loadConfig } from '../cli/config';
 import { show } from '../engine/values';
 import { DATA_EXT, MAX_FILE_BYTES, SOURCE_EXT, toPosix, walk } from '../cli/load';
 import { LineIndex, NotebookDocument, PythonDocument, applyContentChanges, type Cell } from './documents';
@@ -196,6 +197,8 @@ export class RegwiseServer {
       let any = false;
       for (const ch of p.changes) {
         const path = this.pathOf(ch.uri);
+        const base = nodePath.posix.basename(path);
+        if (base === 'regwise.toml' || base === 'pyproject.toml') this.loadFileConfig();
         if (this.byPath.has(path)) continue; // the editor's copy wins over the disk while open
         if (ch.type === 3) this.engine.removeFile(path);
         else this.reloadFromDisk(path, false);
@@ -248,6 +251,7 @@ export class RegwiseServer {
   }
 
   private async initialized(): Promise<void> {
+    this.loadFileConfig();
     if (this.configSupport) await this.loadSettings();
     if (this.watchRegistration) {
       await this.conn.client.register(DidChangeWatchedFilesNotification.type, {
@@ -274,8 +278,34 @@ export class RegwiseServer {
     const { settings, problems } = parseSettings(raw, this.rules.map((r) => r.meta.id));
     for (const m of problems) this.conn.window.showWarningMessage(`Regwise: ${m}`);
     this.settings = settings;
-    this.engine.configure(settings.engine);
+    this.configureEngine();
     if (settings.scanWorkspaceOnOpen) this.scanAll = true;
+  }
+
+  /** The project's config file (`regwise.toml`, `[tool.regwise]`) is the base; the editor's settings override it. */
+  private configureEngine(): void {
+    const file = this.fileConfig ?? {};
+    const mine = this.settings.engine;
+    this.engine.configure({ levels: { ...file.levels, ...mine.levels }, thresholds: { ...file.thresholds, ...mine.thresholds } });
+  }
+
+  private fileConfig: EngineOptions | undefined;
+  private configProblem: string | undefined;
+
+  /** Reads the config file the scanner would use for the workspace folder; a broken one is reported once and ignored. */
+  private loadFileConfig(): void {
+    if (this.root?.kind !== 'file') return;
+    let problem: string | undefined;
+    try {
+      const file = discoverConfig(this.root.dir);
+      this.fileConfig = file ? engineOptions(loadConfig(file, this.rules.map((r) => r.meta.id), toPosix(nodePath.relative(this.root.dir, file)))) : undefined;
+    } catch (err) {
+      this.fileConfig = undefined;
+      problem = err instanceof Error ? err.message : String(err);
+    }
+    if (problem && problem !== this.configProblem) this.conn.window.showWarningMessage(`Regwise: config ignored: ${problem}`);
+    this.configProblem = problem;
+    this.configureEngine();
   }
 
   /** Reads the workspace folder's sources and data files into the engine, in chunks, reporting progress. */
@@ -724,7 +754,7 @@ export class RegwiseServer {
     }
     if (!this.engine.ws.get(path) || !this.settings.enabled) return null;
     this.analyse(path);
-    const md = hoverMarkdown(this.currentViews(), path, offset, this.findingsIn(path), this.rules);
+    const md = hoverMarkdown(this.currentViews(), path, offset, this.findingsIn(path), this.rules, this.engine.thresholds, (err) => this.logError('hover section', err));
     return md ? { contents: { kind: 'markdown', value: md } } : null;
   }
 

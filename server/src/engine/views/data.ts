@@ -160,7 +160,8 @@ const PREPROCESSORS: Record<string, boolean> = {
   'sklearn.impute.KNNImputer': true,
   'sklearn.impute.IterativeImputer': true,
 };
-const PIPELINES = new Set(['sklearn.pipeline.make_pipeline', 'sklearn.pipeline.Pipeline']);
+const PIPELINES = new Set(['sklearn.pipeline.make_pipeline', 'sklearn.pipeline.Pipeline', 'sklearn.compose.ColumnTransformer',
+  'sklearn.compose.make_column_transformer']);
 const SPLITTERS = new Set(['KFold', 'StratifiedKFold', 'GroupKFold', 'StratifiedGroupKFold', 'RepeatedKFold', 'RepeatedStratifiedKFold',
   'ShuffleSplit', 'StratifiedShuffleSplit', 'GroupShuffleSplit', 'TimeSeriesSplit', 'LeaveOneOut', 'LeavePOut', 'LeaveOneGroupOut',
   'LeavePGroupsOut', 'PredefinedSplit'].map((n) => `sklearn.model_selection.${n}`));
@@ -171,6 +172,7 @@ const CV_FUNCTIONS = new Set(['cross_val_score', 'cross_validate', 'cross_val_pr
 const TRAIN_TEST_SPLIT = new Set(['sklearn.model_selection.train_test_split', 'sklearn.cross_validation.train_test_split']);
 const RANDOM_SPLIT = new Set(['torch.utils.data.random_split', 'torch.utils.data.dataset.random_split']);
 const SUBSET = new Set(['torch.utils.data.Subset', 'torch.utils.data.dataset.Subset']);
+const LOADERS = new Set(['torch.utils.data.DataLoader', 'torch.utils.data.dataloader.DataLoader']);
 const REDUCTION_FUNCTIONS = new Set(['numpy.mean', 'numpy.std', 'numpy.var', 'numpy.nanmean', 'numpy.nanstd', 'numpy.nanvar',
   'torch.mean', 'torch.std', 'torch.var']);
 const REDUCTION_METHODS = new Set(['mean', 'std', 'var', 'nanmean', 'nanstd', 'nanvar']);
@@ -255,6 +257,14 @@ interface Body {
   /** Split calls with their input. */
   splitInputs: { split: SplitEvent; input: DArray }[];
   cvUses: CvUse[];
+  /** Parameter names and the root of the rows each stands for. */
+  params: Map<string, number>;
+  /** Values of the `return` statements, for the function's summary. */
+  returns: (DVal | undefined)[];
+}
+
+interface Summary {
+  returns: { item?: number; param: string; fits: FitEvent[] }[];
 }
 
 let ids = 1;
@@ -263,6 +273,7 @@ export class DataView {
   private readonly cache = new Map<string, FileData>();
   /** Preprocessors by the interpreter object that stands for them (so chained and named forms meet). */
   private readonly preByObj = new WeakMap<object, Preprocessor>();
+  private readonly summaries = new Map<DefStmt, Summary>();
 
   constructor(readonly ws: Workspace, readonly interp: Interp) {}
 
@@ -301,18 +312,77 @@ export class DataView {
 
   // ---------- walking one body ----------
 
-  private runBody(path: string, name: string, stmts: readonly Stmt[], params: string[], out: FileData): void {
+  private runBody(path: string, name: string, stmts: readonly Stmt[], params: string[], out: FileData): Body {
     const moduleScope = this.interp.moduleScope(path);
     const scope: Scope = { path, vars: new Map(), parent: moduleScope };
     for (const p of params) scope.vars.set(p, UNKNOWN);
     const b: Body = {
       path, name, env: new Map(), calls: new Map(), memo: new Map(), slices: new Map(), applied: [], splitInputs: [], cvUses: [],
-      frame: { scope, path, body: stmts, done: false, depth: 0 },
+      frame: { scope, path, body: stmts, done: false, depth: 0 }, params: new Map(), returns: [],
     };
-    for (const p of params) b.env.set(p, this.freshArray(p));
+    for (const p of params) {
+      const a = this.freshArray(p);
+      b.env.set(p, a);
+      b.params.set(p, a.rows.root);
+    }
     const fitsBefore = out.fits.length;
     this.block(stmts, b, out);
     this.conclude(b, out, fitsBefore);
+    return b;
+  }
+
+  /**
+   * What a function returns in terms of its parameters: "parameter X, scaled by these fits on all of X" (also for
+   * the items of a returned tuple), so a caller that then splits or refits follows the data through the call.
+   */
+  private summaryOf(stmt: DefStmt, path: string): Summary {
+    const hit = this.summaries.get(stmt);
+    if (hit) return hit;
+    const empty: Summary = { returns: [] };
+    this.summaries.set(stmt, empty);
+    const scratch: FileData = { fits: [], splits: [], cvUses: [], datasets: [], splitLeaks: [], cvLeaks: [], holdoutFits: [] };
+    const b = this.runBody(path, stmt.name, stmt.body, paramNames(stmt), scratch);
+    const out: Summary = { returns: [] };
+    const visit = (v: DVal | undefined, item: number | undefined) => {
+      if (v?.d === 'tuple' && item === undefined) return v.items.forEach((x, i) => visit(x, i));
+      if (v?.d !== 'array' || v.rows.segs.length) return;
+      const param = [...b.params].find(([, root]) => root === v.rows.root)?.[0];
+      const fits = v.scaledBy.filter((f) => f.learns && f.rows.root === v.rows.root && f.rows.segs.length === 0);
+      if (param && fits.length) out.returns.push({ item, param, fits });
+    };
+    for (const r of b.returns) visit(r, undefined);
+    this.summaries.set(stmt, out);
+    return out;
+  }
+
+  /** A call of a summarised function: its fits, re-applied to the rows the caller passes. */
+  private applySummary(e: CallExpr, fn: DefStmt, sum: Summary, args: (DVal | undefined)[], kw: Map<string, DVal | undefined>, b: Body, out: FileData): DVal | undefined {
+    const positional = fn.params.filter((p) => p.kind === 'normal').map((p) => p.name);
+    const argFor = (param: string): { v: DVal | undefined; expr?: Expr } => {
+      const i = positional.indexOf(param);
+      if (i >= 0 && i < e.args.length && e.args.slice(0, i + 1).every((a) => a.k !== 'star')) return { v: args[i], expr: e.args[i] };
+      const k = e.kwargs.find((x) => x.name === param);
+      return k ? { v: kw.get(param), expr: k.value } : { v: undefined };
+    };
+    const items: (DVal | undefined)[] = [];
+    let whole: DVal | undefined;
+    for (const r of sum.returns) {
+      const { v, expr } = argFor(r.param);
+      if (v?.d !== 'array' || !expr) continue;
+      // no fix through a call: the edit would land in the helper, which other callers share
+      const fits = r.fits.map((f): FitEvent => ({
+        ...f, id: ids++, rows: v.rows, dataText: this.text(b.path, expr.span, 30), dataName: expr.k === 'name' ? expr.id : v.name,
+        receiverName: undefined, methodSpan: undefined, pre: undefined,
+      }));
+      out.fits.push(...fits);
+      b.applied.push({ fits, rows: v.rows });
+      const res = this.derived(v, fits);
+      if (r.item === undefined) whole = res;
+      else items[r.item] = res;
+    }
+    if (whole) return whole;
+    if (items.length) return { d: 'tuple', items };
+    return undefined;
   }
 
   private block(stmts: readonly Stmt[], b: Body, out: FileData): void {
@@ -348,7 +418,7 @@ export class DataView {
         return;
       }
       case 'expr': this.ieval(s.value, b); this.dv(s.value, b, out); return;
-      case 'return': if (s.value) { this.ieval(s.value, b); this.dv(s.value, b, out); } return;
+      case 'return': if (s.value) { this.ieval(s.value, b); b.returns.push(this.dv(s.value, b, out)); } return;
       case 'if': this.ieval(s.test, b); this.dv(s.test, b, out); this.block(s.body, b, out); this.block(s.orelse, b, out); return;
       case 'while': this.block(s.body, b, out); this.block(s.orelse, b, out); return;
       case 'for': {
@@ -698,6 +768,11 @@ export class DataView {
         }
         return ds ? this.derived(ds) : undefined;
       }
+      if (LOADERS.has(q)) {
+        // a loader over a dataset the walk knows keeps its rows, role and transform
+        const ds = arr(args[0] ?? kw.get('dataset'));
+        if (ds) return this.derived(ds);
+      }
       if (CV_FUNCTIONS.has(q)) {
         const x = arr(args[1] ?? kw.get('X'));
         if (x) this.cvUse(b, out, { label: `${shortName(q)}(...)`, path: b.path, span: e.span, rows: x.rows, scaledBy: x.scaledBy });
@@ -715,6 +790,12 @@ export class DataView {
         const x = arr(args[0]);
         if (x) return this.derived(x);
       }
+    }
+    // a function of the workspace that returns its argument scaled on all its rows
+    if (callee.t === 'func' && !callee.self && !callee.fn.owner) {
+      const sum = this.summaryOf(callee.fn.stmt, callee.fn.path);
+      const v = sum.returns.length ? this.applySummary(e, callee.fn.stmt, sum, args, kw, b, out) : undefined;
+      if (v) return v;
     }
     // a dataset built with a transform, or a preprocessor, here or in a helper the interpreter followed
     const ds = this.datasetOf(e, rec, b, out);
@@ -806,10 +887,14 @@ export class DataView {
     if (v.q in PREPROCESSORS) pre = { type: shortName(v.q), learns: PREPROCESSORS[v.q], fits: [] };
     else if (PIPELINES.has(v.q)) {
       // a pipeline of preprocessing steps only (no final model) is itself a preprocessor
-      const steps = v.q === 'sklearn.pipeline.make_pipeline' ? v.args : (v.args[0]?.t === 'list' ? v.args[0].items.map((s) => (s.t === 'list' ? s.items[1] : s)) : []);
+      // make_pipeline(a, b) / make_column_transformer((a, cols), ...) / Pipeline([(name, a), ...]) / ColumnTransformer([(name, a, cols)])
+      const pairs = v.q === 'sklearn.pipeline.make_pipeline' ? v.args : v.q === 'sklearn.compose.make_column_transformer' ? v.args.map((s) => (s.t === 'list' ? s.items[0] : s))
+        : (v.args[0]?.t === 'list' ? v.args[0].items.map((s) => (s.t === 'list' ? s.items[1] : s)) : []);
+      // 'passthrough' and 'drop' learn nothing
+      const steps = pairs.filter((s) => !(s && s.t === 'str' && (s.v === 'passthrough' || s.v === 'drop')));
       const kinds = steps.map((s) => (s && s.t === 'obj' && s.q in PREPROCESSORS ? s.q : undefined));
       if (steps.length && kinds.every((k) => k !== undefined)) {
-        pre = { type: `Pipeline(${kinds.map((k) => shortName(k!)).join(', ')})`, learns: kinds.some((k) => PREPROCESSORS[k!]), fits: [] };
+        pre = { type: `${v.q.includes('olumn') ? 'ColumnTransformer' : 'Pipeline'}(${kinds.map((k) => shortName(k!)).join(', ')})`, learns: kinds.some((k) => PREPROCESSORS[k!]), fits: [] };
       }
     }
     if (pre) this.preByObj.set(v, pre);
@@ -817,13 +902,16 @@ export class DataView {
   }
 
   private datasetOf(e: CallExpr, rec: CallRec, b: Body, out: FileData): DArray | undefined {
-    const r = rec.result;
+    let r = rec.result;
+    if (r.t !== 'obj') return undefined;
+    // a helper that returns a DataLoader: the dataset it loads
+    if (LOADERS.has(r.q)) r = r.args[0] ?? r.kwargs.get('dataset') ?? UNKNOWN;
     if (r.t !== 'obj') return undefined;
     let tf = r.kwargs.get('transform');
     const pos = TRANSFORM_POSITION[r.q];
     if (!tf && pos !== undefined) tf = r.args[pos];
     if (!tf || tf.t === 'none') return undefined;
-    const use: DatasetUse = { path: b.path, span: e.span, body: b.name, label: `${this.text(b.path, e.fn.span, 40)}(...)`, role: this.datasetRole(rec), transform: this.chain(tf), overridden: false, fromSplit: false };
+    const use: DatasetUse = { path: b.path, span: e.span, body: b.name, label: `${this.text(b.path, e.fn.span, 40)}(...)`, role: this.datasetRole(rec, r), transform: this.chain(tf), overridden: false, fromSplit: false };
     out.datasets.push(use);
     const a = this.freshArray();
     a.dataset = use;
@@ -832,10 +920,10 @@ export class DataView {
   }
 
   /** `train=False`, `split="val"`, a `val`/`test` folder among the string arguments of the call or of the dataset. */
-  private datasetRole(rec: CallRec): Role | undefined {
-    const r = rec.result as Extract<Value, { t: 'obj' }>;
-    for (const kws of [r.kwargs, rec.kwargs]) {
-      const t = kws.get('train');
+  private datasetRole(rec: CallRec, r: Extract<Value, { t: 'obj' }>): Role | undefined {
+    // CIFAR10(root, False, ...): `train` is the second positional parameter of the torchvision datasets that have it
+    const positionalTrain = TRANSFORM_POSITION[r.q] === 2 ? r.args[1] : undefined;
+    for (const t of [r.kwargs.get('train'), rec.kwargs.get('train'), positionalTrain]) {
       if (t?.t === 'bool') return { part: t.v ? 'train' : 'holdout', by: 'dataset-argument', detail: `train=${t.v ? 'True' : 'False'}` };
     }
     const strs: string[] = [];

@@ -22,7 +22,8 @@ export class Views {
 
   /** Modes, evaluation regions, training steps, optimizers and loader↔model pairs (RULES.md section B). */
   get training(): TrainingView {
-    this.trainingView ??= new TrainingView(this.ws, this.interp);
+    // its own interpreter: walking every script executes a lot, and the step budget is per interpreter
+    this.trainingView ??= new TrainingView(this.ws, new Interp(this.ws));
     return this.trainingView;
   }
 

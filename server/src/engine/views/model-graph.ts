@@ -123,6 +123,7 @@ export function nameModules(root: ModuleInst): { name: string; inst: ModuleInst 
 export class ModelGraphs {
   private readonly byClass = new Map<ClassStmt, ModelGraph | null>();
   private classes: ClassInfo[] | undefined;
+  private classesByPath: Map<string, ClassInfo[]> | undefined;
 
   constructor(readonly ws: Workspace, readonly interp: Interp) {}
 
@@ -143,7 +144,13 @@ export class ModelGraphs {
       }
       this.classes = out;
     }
-    return path ? this.classes.filter((c) => c.path === path) : this.classes;
+    if (!path) return this.classes;
+    // indexed once: rules ask per file and per candidate, and a filter over every class each time is quadratic
+    if (!this.classesByPath) {
+      this.classesByPath = new Map();
+      for (const c of this.classes) this.classesByPath.set(c.path, [...(this.classesByPath.get(c.path) ?? []), c]);
+    }
+    return this.classesByPath.get(path) ?? [];
   }
 
   graph(cls: ClassInfo): ModelGraph | undefined {
@@ -170,10 +177,16 @@ export class ModelGraphs {
    * `sitePath` takes its wording from, the same whichever file is checked: graphs of the site's own file, then of the
    * checked file, then the rest of the workspace.
    */
-  graphOrder(sitePath: string, checkedPath: string): ModelGraph[] {
-    const out = [...this.graphsIn(sitePath)];
-    for (const g of [...this.graphsIn(checkedPath), ...this.all()]) if (!out.includes(g)) out.push(g);
-    return out;
+  *graphOrder(sitePath: string, checkedPath: string): Generator<ModelGraph> {
+    // lazy: callers stop at the first graph that has their site, usually one of the site's own file
+    const seen = new Set<ModelGraph>();
+    for (const list of [() => this.graphsIn(sitePath), () => this.graphsIn(checkedPath), () => this.all()]) {
+      for (const g of list()) {
+        if (seen.has(g)) continue;
+        seen.add(g);
+        yield g;
+      }
+    }
   }
 
   /**

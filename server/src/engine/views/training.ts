@@ -1117,6 +1117,14 @@ class Walker {
       if (target === name) continue;
       this.state.modes.delete(k);
     }
+    if (target !== undefined && root(target) === name && target !== name) {
+      // `model = model.module`: the name now holds a part of what it held
+      const m = this.read(target);
+      for (const k of [...this.state.modes.keys()]) if (k === name || k.startsWith(`${name}.`)) this.state.modes.delete(k);
+      this.state.alias.delete(name);
+      this.state.modes.set(name, m);
+      return;
+    }
     if (target !== undefined) {
       if (target === name) {
         if (c.wrapper) this.state.alias.set(name, { target: name, wrapper: c.wrapper });
