@@ -37,6 +37,8 @@ export default defineRule({
     for (const p of ctx.views.training.pairs) {
       const trigger = p.via[0]?.path ?? p.loop.path;
       if (trigger !== ctx.path) continue;
+      // BatchNorm put in eval on purpose (frozen statistics for small-batch fine-tuning), or a loop in eval only
+      if (!p.mode.t || p.partsEval) continue;
       const b = perDeviceBatch(p, devices);
       if (!b || !b.inst || b.synced) continue;
       const bns = nameModules(b.inst).filter(({ name, inst }) => name && inst.children.length === 0 && familyOf(inst.type) === 'batchnorm' && inst.site);

@@ -167,6 +167,9 @@ describe('walking the tree', () => {
     // the repository's .gitignore applies when scanning a subfolder as well
     expect(where(parseReport(regwise(['scan', 'sub', '--format', 'json'], d).stdout).findings)).toEqual(['sub/keep_gen.py:7 bias-before-norm']);
     expect(where(parseReport(regwise(['scan', 'model_gen.py', '--format', 'json'], d).stdout).findings)).toEqual(['model_gen.py:7 bias-before-norm']);
+    // a folder git ignores is still scanned when named; the .gitignore files inside it still apply
+    writeTree(d, { 'build/.gitignore': 'skip.py\n', 'build/skip.py': biasModel('S') });
+    expect(where(parseReport(regwise(['scan', 'build', '--format', 'json'], d).stdout).findings)).toEqual(['build/a.py:7 bias-before-norm']);
   });
 
   test('symlink loops end; links that leave the roots are not followed; links inside them are read once', () => {
@@ -180,5 +183,25 @@ describe('walking the tree', () => {
     const r = regwise(['scan', 'proj', '--format', 'json'], d);
     expect(r.code).toBe(1);
     expect(where(parseReport(r.stdout).findings)).toEqual(['proj/net.py:7 bias-before-norm']);
+  });
+});
+
+describe('rules and explain', () => {
+  test('`regwise rules` lists every registered rule with its level, family and fix kind', () => {
+    const r = regwise(['rules'], tempDir());
+    expect(r.code).toBe(0);
+    const rows = r.stdout.trim().split('\n').slice(1).map((l) => l.trim().split(/\s+/));
+    expect(rows.map((x) => x[0])).toEqual(RULES.map((x) => x.meta.id));
+    for (const [id, level, family, fix] of rows) {
+      const m = RULES.find((x) => x.meta.id === id)!.meta;
+      expect([level, family, fix]).toEqual([m.level, m.family, m.fix]);
+    }
+  });
+
+  test('`regwise explain RULE` prints the rule page (or its summary)', () => {
+    const r = regwise(['explain', 'bias-before-norm'], tempDir());
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/bias/i);
+    expect(r.stdout.length).toBeGreaterThan(40);
   });
 });

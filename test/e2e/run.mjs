@@ -62,9 +62,10 @@ if (!process.argv.includes('--no-package') || !fs.existsSync(vsix)) {
 
 // all editor state in a fresh folder
 const R = fs.mkdtempSync(path.join(os.tmpdir(), 'regwise-e2e-'));
-const ws = path.join(R, 'pollinator_cnn');
-fs.cpSync(path.join(repo, 'samples', 'pollinator_cnn'), ws, { recursive: true });
-const modelsPy = path.join(ws, 'models.py');
+// the workspace holds the package as a repository does, so the training scripts' imports of it resolve
+const ws = path.join(R, 'field-models');
+fs.cpSync(path.join(repo, 'samples', 'pollinator_cnn'), path.join(ws, 'pollinator_cnn'), { recursive: true });
+const modelsPy = path.join(ws, 'pollinator_cnn', 'models.py');
 const before = fs.readFileSync(modelsPy, 'utf8');
 const userDir = path.join(R, 'data', 'User');
 fs.mkdirSync(userDir, { recursive: true });
@@ -128,7 +129,8 @@ try {
   log('workbench loaded');
   await shot('01-workbench');
 
-  // open models.py from the explorer
+  // open models.py from the explorer (expand the package folder first)
+  await page.locator('.explorer-folders-view .monaco-list-row', { hasText: /^pollinator_cnn$/ }).first().click();
   const row = page.locator('.explorer-folders-view .monaco-list-row', { hasText: /^models\.py$/ });
   await row.first().click();
   await page.waitForSelector('.monaco-editor .view-lines');
@@ -197,6 +199,19 @@ try {
   await page.waitForFunction((msg) => !document.querySelector('.markers-panel')?.textContent?.replace(/\u00a0/g, ' ').includes(msg), MESSAGE, { timeout: 30_000 });
   log('the finding is gone from the Problems panel');
   await shot('06-fixed');
+
+  // a contributed command from the palette: the model structure of the open file, from the server
+  await page.locator('.monaco-editor .view-lines').first().click();
+  await page.keyboard.press('F1');
+  await page.keyboard.type('Regwise: Show model structure');
+  await page.locator('.quick-input-list .monaco-list-row', { hasText: 'Regwise: Show model structure' }).first().waitFor();
+  await page.keyboard.press('Enter');
+  const structure = page.locator('.monaco-editor .view-lines', { hasText: 'PollinatorBackbone' });
+  await structure.first().waitFor();
+  const shown = normalise(await structure.first().innerText());
+  if (!/stem\.conv\s+nn\.Conv2d/.test(shown)) throw new Error(`model structure lacks the stem conv:\n${shown}`);
+  log('Show model structure opened the layer table');
+  await shot('07-model-structure');
 } catch (err) {
   failed = err;
   if (page) await shot('99-failure').catch(() => undefined);

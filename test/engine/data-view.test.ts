@@ -3,6 +3,7 @@ import { expect, test } from 'vitest';
 import { Engine } from '../../server/src/engine/engine';
 import { Views } from '../../server/src/engine/views';
 import { partFromWords, transformName } from '../../server/src/engine/views/data';
+import { RULES } from '../../rules/index';
 import { parser } from '../helpers/rule-tester';
 
 async function view(files: Record<string, string>) {
@@ -65,8 +66,27 @@ test('datasets: role from train=False, a folder argument through a helper, or th
 });
 
 test('name words and transform names', () => {
-  expect(['X_test', 'valSet', 'data/val', 'X_train', 'trainval', 'X_tr', 'interval', 'test_train'].map(partFromWords))
-    .toEqual(['holdout', 'holdout', 'holdout', 'train', undefined, undefined, undefined, undefined]);
+  expect(['X_test', 'valSet', 'data/val', 'X_train', 'trainval', 'X_tr', 'interval', 'test_train', 'X_dev'].map((w) => partFromWords(w)))
+    .toEqual(['holdout', 'holdout', 'holdout', 'train', undefined, undefined, undefined, undefined, 'holdout']);
+  // in a path, `dev` is the device folder of /dev/shm, not a development split
+  expect(partFromWords('dev', true)).toBeUndefined();
   expect(['torchvision.transforms.Normalize', 'torchvision.transforms.v2.RandomCrop', 'torch.nn.Linear'].map(transformName))
     .toEqual(['Normalize', 'RandomCrop', undefined]);
+});
+
+test('findings do not depend on which file is analysed first; a recursive helper does not loop', async () => {
+  const files: Record<string, string> = {
+    'prep.py': 'from sklearn.preprocessing import StandardScaler\ndef scale(X, depth=0):\n    if depth > 3:\n        return scale(X, depth - 1)\n    return StandardScaler().fit_transform(X)\n',
+    'a.py': 'from sklearn.model_selection import train_test_split\nfrom prep import scale\ndef run(X, y):\n    return train_test_split(scale(X), y)\n',
+    'b.py': 'from sklearn.model_selection import cross_val_score\nfrom sklearn.svm import SVC\nfrom prep import scale\ndef run(X, y):\n    return cross_val_score(SVC(), scale(X), y)\n',
+  };
+  const run = async (order: string[]) => {
+    const e = new Engine(await parser(), RULES.filter((r) => r.meta.family === 'data'));
+    for (const p of order) e.setFile(p, files[p]);
+    return e.analyze(order).map((f) => `${f.path}:${f.span.line + 1} ${f.rule}:${f.messageId}`).sort();
+  };
+  const ab = await run(['prep.py', 'a.py', 'b.py']);
+  // one helper, two callers: the split in a.py and the cross-validation in b.py
+  expect(ab).toEqual(['prep.py:5 norm-fit-before-split:cv', 'prep.py:5 norm-fit-before-split:split', 'prep.py:5 scaled-before-cv:prescaled']);
+  expect(await run(['b.py', 'a.py', 'prep.py'])).toEqual(ab);
 });

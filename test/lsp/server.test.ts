@@ -152,6 +152,23 @@ describe('push diagnostics', () => {
     expect(kinds[kinds.length - 1]).toBe('end');
   });
 
+  it('reports into an open model file what a closed training script finds, with the config line as related location', async () => {
+    // the workspace holds the package, as a repository does, so `from pollinator_cnn.models import ...` resolves
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root: path.dirname(root), capabilities: PUSH_CAPS });
+    const { uri, text } = await open(client, path.join(root, 'models.py'));
+    const pub = await client.waitFor('batchnorm-tiny-batch in models.py', () => client.diagnostics.get(uri)?.find((p) => ofRule(p.diagnostics, 'batchnorm-tiny-batch').length));
+    const [d] = ofRule(pub.diagnostics, 'batchnorm-tiny-batch');
+    expect(d.range).toEqual(rangeOf(text, STEM_BN));
+    const yamlPath = path.join(root, 'configs', 'run.yaml');
+    const yamlLine = readFile(yamlPath).split('\n').findIndex((l) => l.trim() === 'batch_size: 2');
+    const fromConfig = d.relatedInformation!.find((r) => r.location.uri === uriOf(yamlPath));
+    expect(fromConfig?.location.range.start.line).toBe(yamlLine);
+    const trainText = readFile(path.join(root, 'train.py'));
+    const loop = d.relatedInformation!.find((r) => r.location.uri === uriOf(path.join(root, 'train.py')));
+    expect(loop?.location.range.start.line).toBe(rangeOf(trainText, 'for images, labels in loader:').start.line);
+  });
+
   it('coalesces a burst of edits: only the newest version is analysed and published', async () => {
     const root = copySample('pollinator_cnn');
     const { client } = await start({ root, capabilities: PUSH_CAPS });

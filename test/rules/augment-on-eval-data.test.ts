@@ -22,6 +22,10 @@ test('augment-on-eval-data', async () => {
         code: `${TV}aug = transforms.Compose([transforms.ColorJitter(0.2, 0.2), transforms.RandomRotation(10), transforms.ToTensor()])\ntrain_ds = datasets.MNIST("data", train=True, transform=aug, download=True)\n`,
       },
       {
+        name: 'folders before the dataset root say nothing about the split (/dev/shm, a user called test)',
+        code: `${TV}aug = transforms.Compose([transforms.RandomCrop(32), transforms.ToTensor()])\nfast = datasets.ImageFolder("/dev/shm/crops", transform=aug)\nhome = datasets.ImageFolder("/home/test/projects/crops/train", transform=aug)\n`,
+      },
+      {
         name: 'the dataset under a random_split part given another transform afterwards',
         code: `${TV}def sets(root, eval_tf):\n    full = datasets.ImageFolder(root, transform=transforms.Compose([transforms.RandomResizedCrop(64), transforms.ToTensor()]))\n    train_ds, val_ds = random_split(full, [0.9, 0.1])\n    val_ds.dataset.transform = eval_tf\n    return train_ds, val_ds\n`,
       },

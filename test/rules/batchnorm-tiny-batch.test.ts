@@ -33,6 +33,14 @@ test('batchnorm-tiny-batch', async () => {
         code: { 'models.py': MODELS_CLEAN, 'train.py': `${H}\ndef main(ds):\n    model = TrapNet()\n    train_one_epoch(model, DataLoader(ds, batch_size=8), torch.optim.SGD(model.parameters(), lr=0.1))\n` },
       },
       {
+        name: 'BatchNorm layers frozen in eval for small-batch fine-tuning (loop over model.modules())',
+        code: { 'models.py': MODELS_CLEAN, 'train.py': `${H}\ndef main(ds):\n    model = TrapNet()\n    opt = torch.optim.SGD(model.parameters(), lr=0.01)\n    for epoch in range(3):\n        model.train()\n        for m in model.modules():\n            if isinstance(m, torch.nn.BatchNorm2d):\n                m.eval()\n        for x, y in DataLoader(ds, batch_size=2):\n            opt.zero_grad()\n            F.cross_entropy(model(x), y).backward()\n            opt.step()\n` },
+      },
+      {
+        name: 'the encoder holding the BatchNorm is kept in eval after model.train()',
+        code: { 'models.py': MODELS_CLEAN, 'train.py': `${H}\ndef main(ds):\n    model = TrapNet()\n    model.enc.requires_grad_(False)\n    opt = torch.optim.SGD(model.head.parameters(), lr=0.01)\n    model.train()\n    model.enc.eval()\n    for x, y in DataLoader(ds, batch_size=2):\n        opt.zero_grad()\n        F.cross_entropy(model(x), y).backward()\n        opt.step()\n` },
+      },
+      {
         name: 'only the evaluation loader is small',
         code: { 'models.py': MODELS_CLEAN, 'train.py': `${H}\ndef main(train_ds, val_ds):\n    model = TrapNet()\n    train_one_epoch(model, DataLoader(train_ds, batch_size=64), torch.optim.SGD(model.parameters(), lr=0.1))\n    model.eval()\n    with torch.no_grad():\n        for x, y in DataLoader(val_ds, batch_size=1):\n            model(x)\n` },
       },
@@ -72,6 +80,16 @@ test('batchnorm-tiny-batch', async () => {
         },
         verify(found) {
           if (!found[0].message.includes('trains on 8 samples per device: batch_size 8 from conf/config.yaml:3 (train.batch_size)')) throw new Error(found[0].message);
+        },
+      },
+      {
+        name: 'click option default',
+        code: {
+          'models.py': MODELS,
+          'train.py': `${H}import click\n\n\n@click.command()\n@click.option("--batch-size", default=6, type=int)\ndef main(batch_size):\n    model = TrapNet()\n    loader = DataLoader(None, batch_size=batch_size)\n    train_one_epoch(model, loader, torch.optim.SGD(model.parameters(), lr=0.1))\n`,
+        },
+        verify(found) {
+          if (!found[0].message.includes('batch_size 6 from train.py:18 (--batch-size default)')) throw new Error(found[0].message);
         },
       },
       {

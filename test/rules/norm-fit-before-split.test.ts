@@ -93,6 +93,13 @@ test('norm-fit-before-split', async () => {
         },
       },
       {
+        name: 'the one-call form sklearn.preprocessing.scale before the split',
+        code: `from sklearn import preprocessing\nfrom sklearn.model_selection import train_test_split\ndef prepare(X, y):\n    Xs = preprocessing.scale(X)\n#        ^^^^^^^^^^^^^^^^^^^^^^ norm-fit-before-split:split\n    return train_test_split(Xs, y)\n`,
+        verify(found) {
+          if (!found[0].message.includes('fits StandardScaler on all rows of `X`')) throw new Error(found[0].message);
+        },
+      },
+      {
         name: 'fit on all rows outside a KFold loop, transform inside it',
         code: `${SK}def folds(X, y):\n    scaler = StandardScaler().fit(X)\n#            ^^^^^^^^^^^^^^^^^^^^^^^ norm-fit-before-split:cv\n    for tr, te in KFold(n_splits=5, shuffle=True).split(X):\n        clf = LogisticRegression().fit(scaler.transform(X[tr]), y[tr])\n        print(clf.score(scaler.transform(X[te]), y[te]))\n`,
       },

@@ -205,10 +205,10 @@ async function scan(args: string[], io: Io): Promise<number> {
     const r = await analyzeInWorkers(script, jobs, sources, collected.data, engineOptions(cfg), paths, (phase, done, total) => progress.update(phase, done, total));
     workers = r.workers;
     findings = mergeFindings(r.findings);
+    // --fix re-analyses files on this thread: parse here then (fixing is rare; holding every file's facts is not free)
     loadMain = () => {
       for (const d of collected.data) engine.setDataFile(d.rel, d.text);
-      const facts = r.facts();
-      sources.forEach((s, i) => engine.setFileFacts(s, facts[i]));
+      for (const s of sources) engine.setSource(s);
     };
   } else {
     for (const d of collected.data) engine.setDataFile(d.rel, d.text);

@@ -2,9 +2,7 @@
 import * as fs from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
-import * as v8 from 'node:v8';
 import { Worker } from 'node:worker_threads';
-import type { FileFacts } from '../engine/facts';
 import type { SourceFile } from '../engine/source';
 import type { EngineOptions, Finding } from '../engine/types';
 import type { WorkerRequest, WorkerResponse } from './worker';
@@ -115,8 +113,6 @@ class Pool {
 export interface ParallelResult {
   /** Per target path, in the order given, what `engine.analyze([path], views)` returned in a worker. */
   findings: Finding[][];
-  /** Decodes the facts of every source (for the main thread's own engine, e.g. for --fix); in source order. */
-  facts(): FileFacts[];
   workers: number;
 }
 
@@ -134,7 +130,7 @@ export async function analyzeInWorkers(
   onProgress?: (phase: string, done: number, total: number) => void,
 ): Promise<ParallelResult> {
   const total = sources.reduce((n, s) => n + s.text.length, 0);
-  const factBatches = batches(sources.map((s) => s.text.length), Math.max(32 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
+  const factBatches = batches(sources.map((s) => s.text.length), Math.max(8 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
   const pool = new Pool(script, Math.max(1, Math.min(jobs, factBatches.length)));
   try {
     await pool.start();
@@ -148,7 +144,10 @@ export async function analyzeInWorkers(
       onProgress?.('parsing', parsed, sources.length);
     });
     // every worker gets the whole workspace: rules see cross-file facts exactly as a single thread would
-    await Promise.all(Array.from({ length: pool.size }, (_, k) => pool.ask(k, { type: 'load', sources: [...sources], facts: buffers, data: [...data], options })));
+    const loaded = Array.from({ length: pool.size }, (_, k) => pool.ask(k, { type: 'load', sources: [...sources], facts: buffers, data: [...data], options }));
+    // postMessage has copied them to every worker: the main thread keeps no facts (it reads them only for --fix)
+    buffers.length = 0;
+    await Promise.all(loaded);
     const findings: Finding[][] = new Array(targets.length);
     const chunk = Math.max(1, Math.ceil(targets.length / (pool.size * 16)));
     const chunks: number[][] = [];
@@ -161,7 +160,7 @@ export async function analyzeInWorkers(
       checked += idx.length;
       onProgress?.('analysing', checked, targets.length);
     });
-    return { findings, facts: () => buffers.flatMap((b) => v8.deserialize(b) as FileFacts[]), workers: pool.size };
+    return { findings, workers: pool.size };
   } finally {
     await pool.close();
   }

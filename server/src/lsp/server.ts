@@ -44,6 +44,8 @@ export const FIX_ALL_KIND = 'source.fixAll.regwise';
 export const DEFAULT_DEBOUNCE_MS = 20;
 /** Files loaded per turn of the event loop while building the workspace model, so requests stay answered. */
 const LOAD_CHUNK = 25;
+/** Bound on the importers analysed with a file (a module imported everywhere would otherwise pull in the workspace). */
+const MAX_DEPENDENTS = 64;
 
 interface Result {
   gen: number;
@@ -419,8 +421,9 @@ export class RegwiseServer {
       }
       const file = this.engine.ws.get(path);
       const uri = this.uriOf(path);
-      if (!file || !uri || file.source.cells) return undefined; // a closed notebook has no cell URIs to point at
-      const lines = this.linesOf(path, file.source.text);
+      const data = file ? undefined : this.engine.ws.dataFiles.get(path);
+      if ((!file && !data) || !uri || file?.source.cells) return undefined; // a closed notebook has no cell URIs to point at
+      const lines = this.linesOf(path, file ? file.source.text : data!.text);
       return { uri, range: { start: lines.positionAt(start), end: lines.positionAt(end) } };
     },
   };
@@ -505,6 +508,49 @@ export class RegwiseServer {
     return r;
   }
 
+  private deps: { gen: number; rev: Map<string, Set<string>> } | undefined;
+
+  /** importer sets by imported file, from the facts' imports resolved the way the interpreter resolves them. */
+  private reverseImports(): Map<string, Set<string>> {
+    if (this.deps?.gen === this.gen) return this.deps.rev;
+    const rev = new Map<string, Set<string>>();
+    const ws = this.engine.ws;
+    for (const [from, f] of ws.files) {
+      for (const imp of f.facts.imports) {
+        const targets = [ws.resolveModule(from, imp.module, imp.level)];
+        // `from pkg import mod` may name a submodule
+        if (imp.member) targets.push(ws.resolveModule(from, imp.module ? `${imp.module}.${imp.member}` : imp.member, imp.level));
+        for (const t of targets) if (t && t !== from) (rev.get(t) ?? rev.set(t, new Set()).get(t)!).add(from);
+      }
+    }
+    this.deps = { gen: this.gen, rev };
+    return rev;
+  }
+
+  /** Files whose analysis may report findings in `path`: those importing it, directly or through other files. */
+  private dependentsOf(path: string): string[] {
+    const rev = this.reverseImports();
+    const out: string[] = [];
+    const seen = new Set([path]);
+    const queue = [path];
+    while (queue.length && out.length < MAX_DEPENDENTS) {
+      for (const d of rev.get(queue.shift()!) ?? []) {
+        if (seen.has(d)) continue;
+        seen.add(d);
+        out.push(d);
+        queue.push(d);
+      }
+    }
+    return out;
+  }
+
+  /** Analyses a file and the files that import it, so findings they report into it (a script's batch size) appear. */
+  private analyseFor(path: string): void {
+    this.analyse(path);
+    if (!this.settings.enabled) return;
+    for (const d of this.dependentsOf(path)) this.analyse(d);
+  }
+
   /** A document changed: everything depending on the workspace is stale; analyse it after the debounce. */
   private changed(path: string): void {
     this.gen++;
@@ -542,7 +588,7 @@ export class RegwiseServer {
     for (const path of order) {
       if (cancelled()) return;
       if (!this.byPath.has(path)) continue;
-      this.analyse(path);
+      this.analyseFor(path);
       this.publish(path);
       await new Promise((r) => setImmediate(r));
     }
@@ -611,7 +657,7 @@ export class RegwiseServer {
     // let a burst of edits settle before the synchronous analysis starts
     await new Promise((r) => setImmediate(r));
     if (token.isCancellationRequested) throw new ResponseError(LSPErrorCodes.ServerCancelled, 'cancelled', { retriggerRequest: true });
-    this.analyse(path);
+    this.analyseFor(path);
     return { kind: DocumentDiagnosticReportKind.Full, resultId: this.resultId(), items: this.diagnosticsFor(path).get(uri) ?? [] };
   }
 
@@ -652,7 +698,7 @@ export class RegwiseServer {
     const nb = this.cellOwner.get(uri);
     const path = nb ? nb.path : this.pathOf(uri);
     if (!this.engine.ws.get(path)) return undefined;
-    this.analyse(path);
+    this.analyseFor(path);
     return { path, findings: this.findingsIn(path) };
   }
 
@@ -753,7 +799,7 @@ export class RegwiseServer {
       offset = (doc?.lines ?? this.linesOf(path, text)).offsetAt(p.position);
     }
     if (!this.engine.ws.get(path) || !this.settings.enabled) return null;
-    this.analyse(path);
+    this.analyseFor(path);
     const md = hoverMarkdown(this.currentViews(), path, offset, this.findingsIn(path), this.rules, this.engine.thresholds, (err) => this.logError('hover section', err));
     return md ? { contents: { kind: 'markdown', value: md } } : null;
   }

@@ -3,7 +3,7 @@
 import * as posix from 'node:path/posix';
 import type { CallExpr, DefStmt, Expr, Span, Stmt } from '../ir';
 import { walkStmts } from '../ir';
-import type { Frame, Interp } from '../interp';
+import { Interp, type Frame } from '../interp';
 import { toCell } from '../source';
 import { UNKNOWN, num, str, type Scope, type Value } from '../values';
 import type { Workspace } from '../workspace';
@@ -13,7 +13,7 @@ export type Part = 'train' | 'holdout';
 /** A split of rows: a splitting call, a K-fold `split()`, or a pair of complementary slices `[:k]` / `[k:]`. */
 export interface SplitEvent {
   id: number;
-  kind: 'train_test_split' | 'random_split' | 'folds' | 'slice' | 'index';
+  kind: 'train_test_split' | 'random_split' | 'folds' | 'slice';
   /** How a message names it: `train_test_split(...)`, `KFold.split(...)`, `slicing [:n_train] / [n_train:]`. */
   label: string;
   path: string;
@@ -160,6 +160,12 @@ const PREPROCESSORS: Record<string, boolean> = {
   'sklearn.impute.KNNImputer': true,
   'sklearn.impute.IterativeImputer': true,
 };
+/** scikit-learn's one-call forms: statistics of all rows of the argument, applied to it (fit_transform in one step). */
+const SCALE_FUNCTIONS: Record<string, string> = {
+  'sklearn.preprocessing.scale': 'StandardScaler', 'sklearn.preprocessing.minmax_scale': 'MinMaxScaler',
+  'sklearn.preprocessing.robust_scale': 'RobustScaler', 'sklearn.preprocessing.maxabs_scale': 'MaxAbsScaler',
+  'sklearn.preprocessing.quantile_transform': 'QuantileTransformer', 'sklearn.preprocessing.power_transform': 'PowerTransformer',
+};
 const PIPELINES = new Set(['sklearn.pipeline.make_pipeline', 'sklearn.pipeline.Pipeline', 'sklearn.compose.ColumnTransformer',
   'sklearn.compose.make_column_transformer']);
 const SPLITTERS = new Set(['KFold', 'StratifiedKFold', 'GroupKFold', 'StratifiedGroupKFold', 'RepeatedKFold', 'RepeatedStratifiedKFold',
@@ -203,10 +209,10 @@ function words(s: string): string[] {
   return s.replace(/([a-z0-9])([A-Z])/g, '$1_$2').toLowerCase().split(/[^a-z]+/).filter(Boolean);
 }
 
-/** The part a name or path says it holds, if exactly one kind of word says so. */
-export function partFromWords(s: string): Part | undefined {
+/** The part a name or path says it holds, if exactly one kind of word says so (`dev` only in names: `/dev/shm`). */
+export function partFromWords(s: string, path = false): Part | undefined {
   const ws = words(s);
-  const h = ws.some((w) => HOLDOUT_WORDS.has(w));
+  const h = ws.some((w) => HOLDOUT_WORDS.has(w) && !(path && w === 'dev'));
   const t = ws.some((w) => TRAIN_WORDS.has(w));
   if (h === t) return undefined;
   return h ? 'holdout' : 'train';
@@ -225,7 +231,7 @@ export function transformName(q: string): string | undefined {
 // ---------- abstract values of the walk ----------
 
 type DVal =
-  | { d: 'array'; rows: Rows; scaledBy: FitEvent[]; name?: string; fresh?: boolean; dataset?: DatasetUse; transformValue?: Value }
+  | { d: 'array'; rows: Rows; scaledBy: FitEvent[]; name?: string; dataset?: DatasetUse; transformValue?: Value }
   | { d: 'stats'; rows: Rows; call: CallExpr; path: string; dataText: string; fit?: FitEvent }
   | { d: 'pre'; pre: Preprocessor }
   | { d: 'folds'; split: SplitEvent; rows: Rows }
@@ -275,7 +281,12 @@ export class DataView {
   private readonly preByObj = new WeakMap<object, Preprocessor>();
   private readonly summaries = new Map<DefStmt, Summary>();
 
-  constructor(readonly ws: Workspace, readonly interp: Interp) {}
+  /** The interpreter of the file being analysed (one per file, see `forFile`). */
+  private interp: Interp;
+
+  constructor(readonly ws: Workspace) {
+    this.interp = new Interp(ws);
+  }
 
   /** Everything the data view knows about one file (a script, a module of functions, or a notebook). */
   forFile(path: string): FileData {
@@ -285,6 +296,8 @@ export class DataView {
     this.cache.set(path, out);
     const file = this.ws.get(path);
     if (!file) return out;
+    // a fresh interpreter per file: its bounded step budget then depends on this file alone
+    this.interp = new Interp(this.ws);
     const top = file.facts.ir.body;
     this.runBody(path, '<module>', top, [], out);
     walkStmts(top, (s) => {
@@ -471,7 +484,7 @@ export class DataView {
   }
 
   private freshArray(name?: string): DArray {
-    return { d: 'array', rows: { id: ids++, root: ids++, segs: [] }, scaledBy: [], name, fresh: true };
+    return { d: 'array', rows: { id: ids++, root: ids++, segs: [] }, scaledBy: [], name };
   }
 
   private derived(a: DArray, extra: FitEvent[] = []): DArray {
@@ -756,6 +769,19 @@ export class DataView {
         const pre = rec.result.t === 'obj' ? this.preprocessorOf(rec.result) : undefined;
         return pre ? { d: 'pre', pre } : undefined;
       }
+      if (q in SCALE_FUNCTIONS) {
+        const x = arr(args[0] ?? kw.get('X'));
+        const argExpr = e.args[0] ?? e.kwargs.find((k) => k.name === 'X')?.value;
+        if (x && argExpr) {
+          const fit: FitEvent = {
+            id: ids++, kind: 'fit_transform', estimator: SCALE_FUNCTIONS[q], call: e, path: b.path, text: this.text(b.path, e.span), rows: x.rows,
+            dataText: this.text(b.path, argExpr.span, 30), dataName: argExpr.k === 'name' ? argExpr.id : x.name, learns: true,
+          };
+          out.fits.push(fit);
+          b.applied.push({ fits: [fit], rows: x.rows });
+          return this.derived(x, [fit]);
+        }
+      }
       if (TRAIN_TEST_SPLIT.has(q)) return this.trainTestSplit(e, args, b, out);
       if (RANDOM_SPLIT.has(q)) return this.randomSplit(e, arr(args[0] ?? kw.get('dataset')), rec, b, out);
       if (SUBSET.has(q)) {
@@ -934,8 +960,11 @@ export class DataView {
     const parts = new Set<Part>();
     let detail = '';
     for (const s of strs) {
-      for (const seg of s.split(/[\\/]/)) {
-        const p = seg && seg.length <= 24 ? partFromWords(seg) : undefined;
+      // the split folder sits at the end of a dataset root (`data/val`, `crops/test/images`); earlier folders such as
+      // `/dev/shm` or a user called `test` say nothing about the split
+      const segs = s.split(/[\\/]/).filter(Boolean).slice(-2);
+      for (const seg of segs) {
+        const p = seg.length <= 24 ? partFromWords(seg, true) : undefined;
         if (p) {
           parts.add(p);
           detail ||= `"${s}"`;

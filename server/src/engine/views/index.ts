@@ -29,7 +29,9 @@ export class Views {
 
   /** Splits, preprocessing fits, transforms and datasets, with training/held-out roles (RULES.md section C). */
   get data(): DataView {
-    this.dataView ??= new DataView(this.ws, this.interp);
+    // it runs its own interpreter per file: walking every function body evaluates calls again, and that must neither
+    // use up the step budget the other views share nor make one file's findings depend on which file came first
+    this.dataView ??= new DataView(this.ws);
     return this.dataView;
   }
 }

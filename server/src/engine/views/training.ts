@@ -2,10 +2,10 @@
 // calls, evaluation regions, training steps, optimizers, freezing, distributed wrappers and loader↔model pairs.
 import * as posix from 'node:path/posix';
 import type { CallExpr, DefStmt, Expr, Span, Stmt } from '../ir';
-import { dottedName, exprChildren } from '../ir';
+import { dottedName, exprChildren, stmtBlocks } from '../ir';
 import type { Frame, Interp } from '../interp';
 import { BATCH_STAT_FAMILIES, DROPOUT_FAMILIES, familyOf, isKnownCaringConstructor } from '../torch-catalog';
-import type { ClassInfo, FuncInfo, ModuleInst, Value } from '../values';
+import type { FuncInfo, ModuleInst, Value } from '../values';
 import { UNKNOWN, num, truthy } from '../values';
 import type { Workspace } from '../workspace';
 
@@ -106,6 +106,9 @@ export interface TrainResume {
 }
 
 export interface Pair {
+  /** The model's mode while the loop trains it, and whether parts of it were put in eval (frozen BatchNorm). */
+  mode: Mode;
+  partsEval: boolean;
   model: Value;
   loader: Value;
   /** The loop over the loader (in the file where it is written). */
@@ -164,11 +167,20 @@ interface Summary {
   final: Map<string, Mode>;
   evals: EvalEvent[];
   trains: TrainPoint[];
-  pairs: { model: ModuleRef; loader: ModuleRef; loop: Site; via: Site[] }[];
+  pairs: PairRefs[];
   forwards: ModuleRef[];
   /** The function (or a callee) runs a backward() or an optimizer step. */
   steps: boolean;
   returns?: { key?: string; mode?: Mode };
+}
+
+interface PairRefs {
+  model: ModuleRef;
+  loader: ModuleRef;
+  loop: Site;
+  via: Site[];
+  mode: Mode;
+  partsEval: boolean;
 }
 
 interface Alias {
@@ -265,6 +277,7 @@ export class TrainingView {
     if (u.inst) {
       const counts = new Map<string, number>();
       let cares = false;
+      let opaque = false;
       for (const m of descendants(u.inst)) {
         const fam = familyOf(m.type);
         const isBn = BATCH_STAT_FAMILIES.has(fam) || (fam === 'instancenorm' && truthy(m.args.get('track_running_stats')) === true);
@@ -274,8 +287,10 @@ export class TrainingView {
           const short = m.type.slice(m.type.lastIndexOf('.') + 1);
           counts.set(short, (counts.get(short) ?? 0) + 1);
         }
-        if (m.kind === 'opaque') return undefined;
+        if (m.kind === 'opaque') opaque = true;
       }
+      // a part the interpreter could not build may hold dropout: without one found, the answer is unknown
+      if (!cares && opaque) return undefined;
       const what = [...counts].map(([t, n]) => `${n} ${t}`).join(', ');
       return { cares, what, type: shortType(u.inst.type) };
     }
@@ -396,6 +411,8 @@ class Walker {
   private readonly frame: Frame;
   private readonly params: string[];
   private readonly paramSet: Set<string>;
+  /** Names a function binds itself; other names it uses are globals, whose mode is the caller's (like a parameter). */
+  private locals: Set<string> | undefined;
   private readonly summaryOut: Summary;
   private readonly loops: Extract<Stmt, { k: 'for' | 'while' }>[] = [];
   /** Per open loop: modules forwarded outside evaluation regions and training steps seen in its body. */
@@ -426,10 +443,8 @@ class Walker {
       const scope = interp.bindParams(fn, undefined, [], new Map(), base);
       // parameters are what callers pass: unknown here, except values decorators supply (Hydra configs, click)
       this.params = fn.stmt.params.filter((p) => p.kind === 'normal' || p.kind === 'kwonly').map((p) => p.name);
-      for (const p of this.params) {
-        const v = scope.vars.get(p);
-        if (!v || v.t !== 'dict') scope.vars.set(p, UNKNOWN);
-      }
+      // a parameter's own default is only what callers pass when they pass nothing: unknown here
+      for (const p of fn.stmt.params) if (p.default) scope.vars.set(p.name, UNKNOWN);
       this.frame = { scope, path, body: fn.stmt.body, done: false, depth: 1, cls: fn.owner };
       this.fnName = fn.owner ? `${fn.owner.name}.${fn.stmt.name}` : fn.stmt.name;
       this.quietEvals = view.isLightningHook(fn);
@@ -441,6 +456,7 @@ class Walker {
       this.quietEvals = false;
     }
     this.paramSet = new Set(this.params);
+    if (fn) this.locals = localNames(fn.stmt);
     this.summaryOut = { fn: fn!, final: new Map(), evals: [], trains: [], pairs: [], forwards: [], steps: false };
   }
 
@@ -458,12 +474,18 @@ class Walker {
     if (this.state) this.exits.push(this.state);
     const exit = this.joinStates(this.exits);
     if (exit) {
-      for (const [k, m] of exit.modes) if (this.paramSet.has(root(k))) this.summaryOut.final.set(k, m);
+      for (const [k, m] of exit.modes) if (this.isEntry(root(k))) this.summaryOut.final.set(k, m);
     }
     return this.summaryOut;
   }
 
   // ---------- state ----------
+
+  /** A key root whose mode at entry is whatever the caller had: a parameter, or a global the function reads. */
+  private isEntry(name: string): boolean {
+    if (this.paramSet.has(name)) return true;
+    return !!this.locals && !this.locals.has(name) && !name.startsWith('%');
+  }
 
   private resolve(key: string, st: State | null = this.state): string {
     if (!st) return key;
@@ -492,7 +514,7 @@ class Walker {
       if (i < 0) break;
       k = k.slice(0, i);
     }
-    return this.paramSet.has(root(key)) ? ENTRY : UNKNOWN_MODE;
+    return this.isEntry(root(key)) ? ENTRY : UNKNOWN_MODE;
   }
 
   private set(key: string, m: Mode): void {
@@ -580,7 +602,7 @@ class Walker {
           this.visit(s.value, s);
           const c = this.classify(s.value);
           const key = c.key ? this.resolve(c.key) : undefined;
-          const ret = key && this.paramSet.has(root(key)) ? { key } : key ? { mode: this.read(key) } : c.fresh ? { mode: c.fresh } : undefined;
+          const ret = key && this.isEntry(root(key)) ? { key } : key ? { mode: this.read(key) } : c.fresh ? { mode: c.fresh } : undefined;
           if (ret && this.record) this.summaryOut.returns = this.summaryOut.returns ?? ret;
         }
         if (this.state) this.exits.push(this.state);
@@ -683,11 +705,11 @@ class Walker {
     this.loops.pop();
     this.loopInfo.pop();
     this.execBlock(s.orelse);
-    if (s.k === 'for' && info.trains > 0) this.pairLoop(s, info.fwd);
+    if (s.k === 'for' && info.trains > 0) this.pairLoop(s, info.fwd, cur, end);
   }
 
   /** `for x, y in loader:` whose body forwards a module and steps: the loader feeds that module's training. */
-  private pairLoop(s: Extract<Stmt, { k: 'for' }>, fwd: Map<string, ModuleRef>): void {
+  private pairLoop(s: Extract<Stmt, { k: 'for' }>, fwd: Map<string, ModuleRef>, head: State | null, end: State | null): void {
     if (!this.record) return;
     let it = s.iter;
     for (let i = 0; i < 3 && it.k === 'call'; i++) {
@@ -699,12 +721,25 @@ class Walker {
     // `for x, y in DataLoader(ds, batch_size=2):` has no name: key it by its position
     const loader: ModuleRef = { key: lkey ? this.resolve(lkey) : `%${it.span.start}`, text: this.src(it.span), value: this.value(it) };
     const site: Site = { path: this.path, span: s.iter.span };
-    for (const ref of fwd.values()) this.emitPair({ model: ref, loader, loop: site, via: [] });
+    for (const ref of fwd.values()) {
+      const mode = joinMode(this.read(ref.key, head), this.read(ref.key, end));
+      this.emitPair({ model: ref, loader, loop: site, via: [], mode, partsEval: this.partsEval(ref.key, head) || this.partsEval(ref.key, end) });
+    }
   }
 
-  private emitPair(p: { model: ModuleRef; loader: ModuleRef; loop: Site; via: Site[] }): void {
-    if (this.paramSet.has(root(p.loader.key)) || this.paramSet.has(root(p.model.key))) this.summaryOut.pairs.push(p);
-    if (isLoader(p.loader.value) && p.model.value.t !== 'unknown') this.view.pairs.push({ model: p.model.value, loader: p.loader.value, loop: p.loop, via: p.via });
+  /** Some part below `key` is in eval (or lost): its BatchNorm may be frozen on purpose. */
+  private partsEval(key: string, st: State | null): boolean {
+    if (!st) return false;
+    for (const [k, m] of st.modes) if (k.startsWith(`${key}.`) && (m.e.length || m.u)) return true;
+    for (const l of this.lost) if (l === key || l.startsWith(`${key}.`)) return true;
+    return false;
+  }
+
+  private emitPair(p: PairRefs): void {
+    if (this.isEntry(root(p.loader.key)) || this.isEntry(root(p.model.key))) this.summaryOut.pairs.push(p);
+    if (isLoader(p.loader.value) && p.model.value.t !== 'unknown') {
+      this.view.pairs.push({ model: p.model.value, loader: p.loader.value, loop: p.loop, via: p.via, mode: p.mode, partsEval: p.partsEval });
+    }
   }
 
   // ---------- expressions ----------
@@ -763,7 +798,7 @@ class Walker {
       const rv = this.refValue(rkey, key);
       if (rv && follows(rv)) v = rv;
     }
-    const tracked = follows(v) || (v.t === 'unknown' && (this.state.modes.has(rkey) || this.paramSet.has(root(rkey))));
+    const tracked = follows(v) || (v.t === 'unknown' && (this.state.modes.has(rkey) || this.isEntry(root(rkey))));
     if (!tracked) return;
     const ref: ModuleRef = { key: rkey, text: this.src(fn.span), value: v };
     this.forward(ref);
@@ -780,12 +815,12 @@ class Walker {
     } else {
       if (!this.forwarded.has(ref.key)) this.forwarded.set(ref.key, ref);
       for (const l of this.loopInfo) if (!l.fwd.has(ref.key)) l.fwd.set(ref.key, ref);
-      if (this.record && this.paramSet.has(root(ref.key)) && !this.summaryOut.forwards.some((f) => f.key === ref.key)) this.summaryOut.forwards.push(ref);
+      if (this.record && this.isEntry(root(ref.key)) && !this.summaryOut.forwards.some((f) => f.key === ref.key)) this.summaryOut.forwards.push(ref);
     }
   }
 
   private emitEval(ev: EvalEvent): void {
-    if (ev.mode.n && this.paramSet.has(root(ev.ref.key))) this.summaryOut.evals.push(ev);
+    if (ev.mode.n && this.isEntry(root(ev.ref.key))) this.summaryOut.evals.push(ev);
     this.view.evals.push(ev);
   }
 
@@ -806,7 +841,7 @@ class Walker {
   private onTrainPoint(tp: TrainPoint): void {
     if (!this.record) return;
     // a module set to eval on every path (a frozen teacher, say) is deliberate; the slip is train on one pass, eval on the next
-    if (tp.mode.n && this.paramSet.has(root(tp.ref.key))) this.summaryOut.trains.push(tp);
+    if (tp.mode.n && this.isEntry(root(tp.ref.key))) this.summaryOut.trains.push(tp);
     if (!tp.mode.t) return;
     for (const o of tp.mode.e) {
       const loop = [...this.loops].reverse().find((l) => l.span.start <= o.local.start && o.local.end <= l.span.end);
@@ -999,7 +1034,12 @@ class Walker {
     const mapKey = (key: string): { key: string; text: string; value: Value } | undefined => {
       const r = root(key);
       const a = argOf.get(r);
-      if (!a) return undefined;
+      if (!a) {
+        // a global the callee reads is the same name here when both live in one file
+        if (names.includes(r) || fn.path !== this.path || r.startsWith('%') || this.locals?.has(r)) return undefined;
+        const rk = this.resolve(key);
+        return { key: rk, text: key, value: this.refValue(rk, key) ?? UNKNOWN };
+      }
       const rest = key.slice(r.length);
       const ak = this.keyOf(a) ?? this.synthKey(a);
       let value = this.value(a);
@@ -1029,11 +1069,13 @@ class Walker {
     if (sum.steps) this.stepped();
     // loaders the callee trains a module with
     for (const p of sum.pairs) {
-      const mm = this.paramSet.has(root(p.model.key)) ? undefined : mapKey(p.model.key);
+      const mm = mapKey(p.model.key);
       const ml = mapKey(p.loader.key);
       const model = mm ? { key: mm.key, text: mm.text, value: mm.value } : p.model;
       const loader = ml ? { key: ml.key, text: ml.text, value: ml.value } : p.loader;
-      if (this.record) this.emitPair({ model, loader, loop: p.loop, via: [callSite, ...p.via] });
+      const mode = mm ? substMode(p.mode, this.read(mm.key), c.span) : p.mode;
+      const partsEval = p.partsEval || (!!mm && p.mode.n && this.partsEval(mm.key, this.state));
+      if (this.record) this.emitPair({ model, loader, loop: p.loop, via: [callSite, ...p.via], mode, partsEval });
     }
     // the callee's final modes flow back (shorter keys first: a parent's switch covers its children)
     const finals = [...sum.final].sort((a, b) => a[0].length - b[0].length);
@@ -1173,9 +1215,7 @@ class Walker {
       // calls would run the callee in the interpreter: only names, attributes and passes-through are evaluated
       let cur = e;
       while (cur.k === 'call' && cur.fn.k === 'attr' && PASS_THROUGH.has(cur.fn.attr)) cur = cur.fn.obj;
-      if (cur.k === 'call' && !this.isConstruction(cur) && !this.isWrapCall(cur)) {
-        return cur === e ? UNKNOWN : UNKNOWN;
-      }
+      if (cur.k === 'call' && !this.isConstruction(cur) && !this.isWrapCall(cur)) return UNKNOWN;
       return this.view.interp.evalExpr(cur, { ...this.frame, done: false });
     } catch {
       return UNKNOWN;
@@ -1197,6 +1237,29 @@ class Walker {
   }
 }
 
+/** Names a function binds in its own body (parameters, assignments, loop and with targets, imports, nested defs). */
+function localNames(fn: DefStmt): Set<string> {
+  const out = new Set(fn.params.map((p) => p.name));
+  const add = (t: Expr) => targetNames(t).forEach((n) => out.add(n));
+  const visit = (stmts: readonly Stmt[]) => {
+    for (const st of stmts) {
+      switch (st.k) {
+        case 'assign': st.targets.forEach(add); break;
+        case 'augassign': add(st.target); break;
+        case 'for': add(st.target); break;
+        case 'with': for (const it of st.items) if (it.target) add(it.target); break;
+        case 'import': for (const n of st.names) out.add(n.alias ?? n.module.split('.')[0]); break;
+        case 'from': for (const n of st.names) out.add(n.alias ?? n.name); break;
+        case 'def': case 'class': out.add(st.name); continue;
+        default: break;
+      }
+      for (const b of stmtBlocks(st)) visit(b);
+    }
+  };
+  visit(fn.body);
+  return out;
+}
+
 function targetNames(t: Expr): string[] {
   if (t.k === 'name') return [t.id];
   if (t.k === 'tuple' || t.k === 'list') return t.items.flatMap(targetNames);
@@ -1212,7 +1275,6 @@ export function isLoader(v: Value): v is Extract<Value, { t: 'obj' }> {
   return v.t === 'obj' && LOADERS.has(v.q);
 }
 
-export type { ClassInfo };
 
 /** What one BatchNorm call sees of a training loader's batch: the loader's batch_size, its origin, the wrapper's split. */
 export interface PerDeviceBatch {
