@@ -225,6 +225,7 @@ if (failed) {
   console.log('0 passed, 1 failed');
   process.exit(1);
 }
-fs.rmSync(R, { recursive: true, force: true });
+if (process.env.REGWISE_E2E_KEEP) log(`kept the editor state in ${R}`);
+else fs.rmSync(R, { recursive: true, force: true });
 log(`e2e passed in ${((Date.now() - started) / 1000).toFixed(0)} s`);
 console.log('1 passed, 0 failed');

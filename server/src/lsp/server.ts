@@ -330,6 +330,8 @@ export class RegwiseServer {
         const path = toPosix(nodePath.relative(dir, abs));
         if (!this.byPath.has(path) && this.readIntoEngine(path, abs)) n++;
       }
+      // results computed between chunks saw a partial workspace
+      this.gen++;
       progress?.report(Math.round(((i + LOAD_CHUNK) / Math.max(1, files.length)) * 100), `${Math.min(i + LOAD_CHUNK, files.length)}/${files.length} files`);
       await new Promise((r) => setImmediate(r));
     }
