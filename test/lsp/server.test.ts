@@ -383,4 +383,30 @@ describe('notebook documents', () => {
     });
     expect(ofRule((await client.diagnosticsOf(cellUri(2), 2)).diagnostics)).toEqual([]);
   });
+
+  it('follows cell structure changes: a new cell joins the program in its place, a removed one is cleared', async () => {
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root, capabilities: PUSH_CAPS });
+    const nbUri = uriOf(path.join(root, 'look2.ipynb'));
+    const cellUri = (i: number) => `vscode-notebook-cell:${path.join(root, 'look2.ipynb')}#S${i}`;
+    // the import lives in the first cell; the class alone in the second cannot resolve nn without it
+    await client.conn.sendNotification(DidOpenNotebookDocumentNotification.type, {
+      notebookDocument: { uri: nbUri, notebookType: 'jupyter-notebook', version: 1, cells: [{ kind: NotebookCellKind.Code, document: cellUri(2) }] },
+      cellTextDocuments: [{ uri: cellUri(2), languageId: 'python', version: 1, text: cells[2].text }],
+    });
+    expect(ofRule((await client.diagnosticsOf(cellUri(2), 1)).diagnostics)).toEqual([]);
+    await client.conn.sendNotification(DidChangeNotebookDocumentNotification.type, {
+      notebookDocument: { uri: nbUri, version: 2 },
+      change: { cells: { structure: { array: { start: 0, deleteCount: 0, cells: [{ kind: NotebookCellKind.Code, document: cellUri(1) }] }, didOpen: [{ uri: cellUri(1), languageId: 'python', version: 1, text: cells[1].text }] } } },
+    });
+    const found = await client.waitFor('the finding once the import cell is in', () => client.diagnostics.get(cellUri(2))?.find((p) => ofRule(p.diagnostics).length));
+    expect(ofRule(found.diagnostics)[0].range).toEqual(rangeOf(cells[2].text, 'nn.Conv2d(3, 8, 3)'));
+    const before = client.diagnostics.get(cellUri(2))!.length;
+    await client.conn.sendNotification(DidChangeNotebookDocumentNotification.type, {
+      notebookDocument: { uri: nbUri, version: 3 },
+      change: { cells: { structure: { array: { start: 1, deleteCount: 1 }, didClose: [{ uri: cellUri(2) }] } } },
+    });
+    const cleared = await client.waitFor('the removed cell cleared', () => client.diagnostics.get(cellUri(2))!.slice(before).find((p) => p.diagnostics.length === 0));
+    expect(cleared.diagnostics).toEqual([]);
+  });
 });

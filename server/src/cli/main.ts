@@ -14,7 +14,7 @@ import { Baseline, BaselineError, baselinePath, writeBaseline } from './baseline
 import { changedSince, GitError } from './git';
 import { fingerprints } from './fingerprint';
 import { applyFixesToFiles } from './fixer';
-import { analyzeInWorkers, defaultJobs, workerScript } from './pool';
+import { analyzeInWorkers, defaultJobs, factsInWorkers, workerScript } from './pool';
 import { Progress } from './progress';
 import { displayPath, jsonReport, summarize, toReportFinding, type Report } from './report';
 import { sarifReport } from './sarif';
@@ -201,7 +201,15 @@ async function scan(args: string[], io: Io): Promise<number> {
   // the main thread's engine: filled now when it runs the rules itself, later only if --fix needs it
   let loadMain: () => void;
   let mainLoaded = false;
-  if (jobs > 1 && script && sources.length > 1) {
+  if (jobs > 1 && script && sources.length > 1 && process.env.REGWISE_PARALLEL === 'facts') {
+    const r = await factsInWorkers(script, jobs, sources.map((s) => s.text), (done) => progress.update('parsing', done, sources.length));
+    workers = r.workers;
+    for (const d of collected.data) engine.setDataFile(d.rel, d.text);
+    sources.forEach((s, i) => engine.setFileFacts(s, r.facts[i]));
+    mainLoaded = true;
+    loadMain = () => {};
+    findings = analyzeAll(engine, paths, progress);
+  } else if (jobs > 1 && script && sources.length > 1) {
     const r = await analyzeInWorkers(script, jobs, sources, collected.data, engineOptions(cfg), paths, (phase, done, total) => progress.update(phase, done, total));
     workers = r.workers;
     findings = mergeFindings(r.findings);

@@ -2,7 +2,9 @@
 import * as fs from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
+import * as v8 from 'node:v8';
 import { Worker } from 'node:worker_threads';
+import type { FileFacts } from '../engine/facts';
 import type { SourceFile } from '../engine/source';
 import type { EngineOptions, Finding } from '../engine/types';
 import type { WorkerRequest, WorkerResponse } from './worker';
@@ -161,6 +163,29 @@ export async function analyzeInWorkers(
       onProgress?.('analysing', checked, targets.length);
     });
     return { findings, workers: pool.size };
+  } finally {
+    await pool.close();
+  }
+}
+
+/** Facts only: workers parse and extract shares of the files; the caller's engine takes them and runs the rules. */
+export async function factsInWorkers(script: string, jobs: number, texts: readonly string[], onProgress?: (done: number) => void): Promise<{ facts: FileFacts[]; workers: number }> {
+  const total = texts.reduce((n, t) => n + t.length, 0);
+  const factBatches = batches(texts.map((t) => t.length), Math.max(8 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
+  const pool = new Pool(script, Math.max(1, Math.min(jobs, factBatches.length)));
+  try {
+    await pool.start();
+    const facts: FileFacts[] = new Array(texts.length);
+    let done = 0;
+    await pool.each(factBatches, async (k, b) => {
+      const r = await pool.ask(k, { type: 'facts', texts: b.map((j) => texts[j]) });
+      if (r.type !== 'facts') throw new Error('unexpected worker answer');
+      const list = v8.deserialize(r.facts) as FileFacts[];
+      b.forEach((j, i) => (facts[j] = list[i]));
+      done += b.length;
+      onProgress?.(done);
+    });
+    return { facts, workers: pool.size };
   } finally {
     await pool.close();
   }

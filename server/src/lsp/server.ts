@@ -165,7 +165,12 @@ export class RegwiseServer {
           return makeCell(cell.document, cell.kind === 2 ? 'code' : 'other', d?.languageId ?? prev?.language ?? 'python', d?.version ?? prev?.version ?? 0, d?.text ?? prev?.text ?? '');
         });
         const removed = nb.cells.splice(start, deleteCount, ...fresh);
-        for (const r of removed) if (!fresh.some((f) => f.uri === r.uri)) this.cellOwner.delete(r.uri);
+        for (const r of removed) {
+          if (fresh.some((f) => f.uri === r.uri)) continue;
+          this.cellOwner.delete(r.uri);
+          // a removed cell keeps no squiggles
+          if (!this.pull) this.conn.sendDiagnostics({ uri: r.uri, diagnostics: [] });
+        }
         for (const f of fresh) this.cellOwner.set(f.uri, nb);
         for (const closed of cells.structure.didClose ?? []) this.cellOwner.delete(closed.uri);
       }
