@@ -1,5 +1,5 @@
 // `npm run bench`: writes a seeded corpus at three sizes, then times parse-only, `scan --jobs 1` and `scan --jobs 2` on each.
-// Usage: node bench/run.mjs [--sizes 100000,250000,500000] [--seed 7] [--timeout 1800] [--reuse]
+// Usage: node bench/run.mjs [--sizes 100000,250000,500000] [--seed 7] [--timeout 1800] [--reuse] [--cli dist/cli.js]
 import { spawn } from 'node:child_process';
 import * as fs from 'node:fs';
 import * as path from 'node:path';
@@ -17,7 +17,7 @@ const sizes = opt('sizes', '100000,250000,500000').split(',').map(Number);
 const seed = Number(opt('seed', '7'));
 const timeoutS = Number(opt('timeout', '1800'));
 const reuse = args.includes('--reuse');
-const cli = path.join(root, 'dist', 'cli.js');
+const cli = path.resolve(root, opt('cli', path.join('dist', 'cli.js')));
 if (!fs.existsSync(cli)) {
   console.error('bench: dist/cli.js is missing; run `npm run build` first');
   process.exit(2);

@@ -26,6 +26,8 @@ export default defineRule({
     for (const g of ctx.views.models.graphsIn(ctx.path)) {
       for (const [a, b] of g.flow) {
         if (!hasBias(a) || !cancelsBias(b)) continue;
+        // the bias still matters where the same output is also used another way (returned, added, another layer)
+        if (g.sharedOutputs.has(a) || g.flow.some(([x, y]) => x === a && !cancelsBias(y))) continue;
         const site = a.site;
         if (!site) continue;
         const count = num(a.inst.args.get(a.family === 'linear' ? 'out_features' : 'out_channels'));

@@ -10,31 +10,53 @@ beforeAll(async () => {
 });
 afterAll(() => cleanBuild());
 
-function stats(stderr: string): { workers: number; files: number } {
+function stats(stderr: string): { workers: number; files: number; parallel: string } {
   return JSON.parse(/regwise-stats (.*)/.exec(stderr)![1]);
 }
 
 describe('--jobs parity', () => {
-  test.each(['json', 'sarif', 'text'])('samples/: --jobs 2 and 3 print exactly what --jobs 1 prints (%s)', (format) => {
+  // two ways to use the workers: facts only (small scans), or facts plus the rule checks spread over them (large ones)
+  test.each([
+    ['json', 'facts'],
+    ['sarif', 'rules'],
+    ['text', 'facts'],
+    ['text', 'rules'],
+  ])('samples/: --jobs 2 and 3 print exactly what --jobs 1 prints (%s, workers run %s)', (format, mode) => {
     const one = regwise(['scan', 'samples', '--format', format, '--jobs', '1'], ROOT, { REGWISE_STATS: '1' });
-    expect(stats(one.stderr).workers).toBe(0);
+    expect(stats(one.stderr)).toMatchObject({ workers: 0, parallel: 'none' });
     for (const jobs of ['2', '3']) {
-      const many = regwise(['scan', 'samples', '--format', format, '--jobs', jobs], ROOT, { REGWISE_STATS: '1' });
-      expect(stats(many.stderr).workers).toBe(Number(jobs));
+      const many = regwise(['scan', 'samples', '--format', format, '--jobs', jobs], ROOT, { REGWISE_STATS: '1', REGWISE_PARALLEL: mode });
+      expect(stats(many.stderr)).toMatchObject({ workers: Number(jobs), parallel: mode });
       expect(many.stdout).toBe(one.stdout);
       expect(many.code).toBe(one.code);
     }
   });
 
-  test('a generated corpus (many files, imports between them, findings in most) gives identical JSON', () => {
+  test('a generated corpus (many files, imports between them, findings in most) gives identical JSON in both modes', () => {
     const dir = tempDir('regwise-jobs-');
     const corpus = path.join(dir, 'corpus');
     const info = generateCorpus(corpus, 3000, 11) as { files: number };
     const one = regwise(['scan', 'corpus', '--format', 'json', '--jobs', '1', '--fail-level', 'never'], dir);
-    const two = regwise(['scan', 'corpus', '--format', 'json', '--jobs', '2', '--fail-level', 'never'], dir, { REGWISE_STATS: '1' });
-    expect(stats(two.stderr)).toMatchObject({ workers: 2, files: info.files });
     const report = JSON.parse(one.stdout) as { findings: unknown[] };
     expect(report.findings.length).toBeGreaterThan(10);
-    expect(two.stdout).toBe(one.stdout);
+    for (const mode of ['facts', 'rules']) {
+      const two = regwise(['scan', 'corpus', '--format', 'json', '--jobs', '2', '--fail-level', 'never'], dir, { REGWISE_STATS: '1', REGWISE_PARALLEL: mode });
+      expect(stats(two.stderr)).toMatchObject({ workers: 2, files: info.files, parallel: mode });
+      expect(two.stdout).toBe(one.stdout);
+    }
+  });
+
+  test('--fix after the workers ran the rules loads the workspace on the main thread and fixes as --jobs 1 does', () => {
+    const dir = tempDir('regwise-jobs-fix-');
+    generateCorpus(path.join(dir, 'a'), 1500, 5);
+    generateCorpus(path.join(dir, 'b'), 1500, 5);
+    const one = regwise(['scan', 'a', '--fix', '--jobs', '1', '--format', 'json', '--fail-level', 'never'], dir);
+    const two = regwise(['scan', 'b', '--fix', '--jobs', '2', '--format', 'json', '--fail-level', 'never'], dir, { REGWISE_PARALLEL: 'rules' });
+    expect(one.stderr).toMatch(/regwise: [1-9]\d* fix/);
+    expect(two.stderr.replace(/\bb\//g, 'a/')).toBe(one.stderr);
+    // the same report but for the folder name (which the fingerprints hash too)
+    const norm = (out: string, folder: string) => JSON.parse(out.split(`"${folder}/`).join('"x/'), (k, v) => (k === 'fingerprint' ? undefined : v));
+    expect(norm(two.stdout, 'b')).toEqual(norm(one.stdout, 'a'));
+    expect(JSON.parse(one.stdout).findings.length).toBeGreaterThan(0);
   });
 });

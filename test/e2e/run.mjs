@@ -65,6 +65,7 @@ const R = fs.mkdtempSync(path.join(os.tmpdir(), 'regwise-e2e-'));
 // the workspace holds the package as a repository does, so the training scripts' imports of it resolve
 const ws = path.join(R, 'field-models');
 fs.cpSync(path.join(repo, 'samples', 'pollinator_cnn'), path.join(ws, 'pollinator_cnn'), { recursive: true });
+fs.cpSync(path.join(repo, 'samples', 'hive_health'), path.join(ws, 'hive_health'), { recursive: true });
 const modelsPy = path.join(ws, 'pollinator_cnn', 'models.py');
 const before = fs.readFileSync(modelsPy, 'utf8');
 const userDir = path.join(R, 'data', 'User');
@@ -212,6 +213,22 @@ try {
   if (!/stem\.conv\s+nn\.Conv2d/.test(shown)) throw new Error(`model structure lacks the stem conv:\n${shown}`);
   log('Show model structure opened the layer table');
   await shot('07-model-structure');
+
+  // a notebook: the cells are analysed as one program and the squiggle lands in the cell that fits the scaler
+  await page.locator('.explorer-folders-view .monaco-list-row', { hasText: /^hive_health$/ }).first().click();
+  await page.locator('.explorer-folders-view .monaco-list-row', { hasText: /^explore\.ipynb$/ }).first().click();
+  const cell = page.locator('.notebook-editor .code-cell-row', { has: page.locator('.squiggly-warning') });
+  await cell.first().waitFor({ timeout: 90_000 });
+  const cellText = normalise(await cell.first().innerText());
+  if (!cellText.includes('X_scaled = scaler.fit_transform(X)')) throw new Error(`the squiggle is in the wrong cell:\n${cellText}`);
+  const nbEntry = page.locator('.markers-panel .monaco-list-row', { hasText: 'norm-fit-before-split' });
+  await nbEntry.first().waitFor();
+  // bring the cell to the middle of the notebook view for the screenshot (the list scrolls itself, not the page)
+  await cell.first().locator('.monaco-editor .view-lines').first().click();
+  await page.keyboard.press('Escape');
+  await page.keyboard.press('Control+L');
+  log('notebook: squiggle in the scaler cell, Problems entry norm-fit-before-split');
+  await shot('08-notebook');
 } catch (err) {
   failed = err;
   if (page) await shot('99-failure').catch(() => undefined);

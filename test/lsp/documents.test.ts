@@ -79,10 +79,19 @@ describe('settings and the extension manifest', () => {
 
   it('declares exactly the settings the server reads, with the level words the engine knows', () => {
     expect(Object.keys(props).sort()).toEqual(['regwise.enabled', 'regwise.levels', 'regwise.scanWorkspaceOnOpen', 'regwise.thresholds']);
-    expect(props['regwise.levels'].additionalProperties?.enum).toEqual(['off', 'hint', 'info', 'warning', 'error']);
-    const { settings, problems } = parseSettings({ thresholds: Object.fromEntries(Object.keys(props['regwise.thresholds'].properties!).map((k) => [k, 4])) }, []);
+    // each rule's level takes the words the server accepts (the parity test checks the rule list itself)
+    const levels = props['regwise.levels'].properties as Record<string, { enum: string[] }>;
+    expect(Object.keys(levels).length).toBeGreaterThan(0);
+    for (const [rule, schema] of Object.entries(levels)) {
+      expect(schema.enum, rule).toEqual(['off', 'hint', 'info', 'warning', 'error']);
+      expect(parseSettings({ levels: { [rule]: 'hint' } }, [rule]).settings.engine.levels).toEqual({ [rule]: 'hint' });
+    }
+    const valid: Record<string, number> = { 'min-batch-per-device': 8, 'devices-per-process': 4, 'suspicious-drop-rate': 0.75 };
+    expect(Object.keys(props['regwise.thresholds'].properties!).sort()).toEqual(Object.keys(valid).sort());
+    const { settings, problems } = parseSettings({ thresholds: valid }, []);
     expect(problems).toEqual([]);
-    expect(settings.engine.thresholds).toEqual({ minBatchPerDevice: 4, devicesPerProcess: 4, suspiciousDropRate: 4 });
+    expect(settings.engine.thresholds).toEqual({ minBatchPerDevice: 8, devicesPerProcess: 4, suspiciousDropRate: 0.75 });
+    expect(parseSettings({ thresholds: { 'min-batch-per-device': 2.5, 'suspicious-drop-rate': 1 } }, []).problems).toHaveLength(2);
   });
 
   it('drops bad values with a message instead of failing', () => {

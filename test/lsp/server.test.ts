@@ -23,6 +23,7 @@ import {
   type FullDocumentDiagnosticReport,
   type MarkupContent,
   type TextEdit,
+  type WorkspaceEdit,
   type WorkspaceFullDocumentDiagnosticReport,
 } from 'vscode-languageserver-protocol/node';
 import { ROOT, TestClient, applyTextEdits, copySample, editsFor, rangeOf, readFile, uriOf } from './harness';
@@ -169,16 +170,35 @@ describe('push diagnostics', () => {
     expect(loop?.location.range.start.line).toBe(rangeOf(trainText, 'for images, labels in loader:').start.line);
   });
 
+  it('re-analyses an open model file when the YAML config a closed script reads changes on disk', async () => {
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root: path.dirname(root), capabilities: PUSH_CAPS });
+    const { uri } = await open(client, path.join(root, 'models.py'));
+    await client.waitFor('batchnorm-tiny-batch in models.py', () => client.diagnostics.get(uri)?.find((p) => ofRule(p.diagnostics, 'batchnorm-tiny-batch').length));
+    const yamlPath = path.join(root, 'configs', 'run.yaml');
+    fs.writeFileSync(yamlPath, readFile(yamlPath).replace(/^( {2}batch_size:) 2$/m, '$1 64'));
+    expect(readFile(yamlPath)).toMatch(/^ {2}batch_size: 64$/m);
+    const seen = client.diagnostics.get(uri)!.length;
+    await client.conn.sendNotification(DidChangeWatchedFilesNotification.type, { changes: [{ uri: uriOf(yamlPath), type: FileChangeType.Changed }] });
+    const next = await client.waitFor('re-published diagnostics', () => client.diagnostics.get(uri)!.slice(seen)[0]);
+    expect(ofRule(next.diagnostics, 'batchnorm-tiny-batch')).toEqual([]);
+    expect(ofRule(next.diagnostics)).toHaveLength(1);
+  });
+
   it('coalesces a burst of edits: only the newest version is analysed and published', async () => {
     const root = copySample('pollinator_cnn');
-    const { client } = await start({ root, capabilities: PUSH_CAPS });
+    // a debounce far above the time the burst takes to arrive, so a loaded machine cannot split the burst
+    const { client } = await start({ root, capabilities: PUSH_CAPS, initializationOptions: { debounceMs: 400 } });
     const { uri, text } = await open(client, path.join(root, 'models.py'));
     await client.diagnosticsOf(uri, 1);
     const end = rangeOf(text, 'return self.head(feats)').end;
-    for (let v = 2; v <= 8; v++) {
-      const at = { line: end.line, character: end.character + v - 2 };
-      void client.conn.sendNotification(DidChangeTextDocumentNotification.type, { textDocument: { uri, version: v }, contentChanges: [{ range: { start: at, end: at }, text: ' ' }] });
-    }
+    // seven keystrokes in one write, as a fast typist's editor sends them
+    client.writeRaw(
+      [2, 3, 4, 5, 6, 7, 8].map((v) => {
+        const at = { line: end.line, character: end.character + v - 2 };
+        return { method: 'textDocument/didChange', params: { textDocument: { uri, version: v }, contentChanges: [{ range: { start: at, end: at }, text: ' ' }] } };
+      }),
+    );
     const last = await client.diagnosticsOf(uri, 8);
     expect(ofRule(last.diagnostics)).toHaveLength(1);
     await new Promise((r) => setTimeout(r, 300));
@@ -251,7 +271,7 @@ describe('hover', () => {
   });
   it('on a DataLoader: its batch size with the config line it came from, and the per-device batch of the model it trains', async () => {
     const root = copySample('pollinator_cnn');
-    const { client } = await start({ root, capabilities: PUSH_CAPS });
+    const { client } = await start({ root: path.dirname(root), capabilities: PUSH_CAPS });
     await client.waitFor('workspace loaded', () => client.progress.some((p) => (p as { value?: { kind?: string } }).value?.kind === 'end'));
     const { uri, text } = await open(client, path.join(root, 'train.py'));
     const at = rangeOf(text, 'DataLoader(train_set').start;
@@ -261,9 +281,22 @@ describe('hover', () => {
     const line = yaml.findIndex((l) => l.trim() === 'batch_size: 2') + 1;
     expect(md).toContain('**Regwise** · DataLoader');
     expect(md).toContain(`batch_size = 2 (from run.yaml:${line}`);
-    // FIXME: the training view keeps `PollinatorNet(...).to(device)` as an opaque value, so the hover cannot name the class yet
     const loop = rangeOf(text, 'for images, labels in loader:').start.line + 1;
-    expect(md).toContain(`- trains the model in the loop at train.py:${loop}: 2 samples per device per step`);
+    expect(md).toContain(`- trains \`PollinatorNet\` in the loop at train.py:${loop}: 2 samples per device per step`);
+  });
+
+  it('on a BatchNorm layer: the per-device batch each training loop gives it and where the batch size came from', async () => {
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root: path.dirname(root), capabilities: PUSH_CAPS });
+    await client.waitFor('workspace loaded', () => client.progress.some((p) => (p as { value?: { kind?: string } }).value?.kind === 'end'));
+    const { uri, text } = await open(client, path.join(root, 'models.py'));
+    const at = rangeOf(text, STEM_BN).start;
+    const hover = await client.conn.sendRequest(HoverRequest.type, { textDocument: { uri }, position: { line: at.line, character: at.character + 4 } });
+    const md = (hover!.contents as MarkupContent).value;
+    const yamlLine = readFile(path.join(root, 'configs', 'run.yaml')).split('\n').findIndex((l) => l.trim() === 'batch_size: 2') + 1;
+    const loop = rangeOf(readFile(path.join(root, 'train.py')), 'for images, labels in loader:').start.line + 1;
+    expect(md).toContain(`- as \`PollinatorNet.backbone.stem.bn\`, trains on 2 samples per device (batch_size 2 from run.yaml:${yamlLine} (train.batch_size)) in the loop at train.py:${loop}`);
+    expect(md).toContain('batchnorm-tiny-batch');
   });
 
   it('on a mode switch and on the evaluation region it reaches', async () => {
@@ -311,6 +344,32 @@ describe('project config file', () => {
     const { uri: u2 } = await open(client, path.join(root, 'legacy.py'));
     expect(ofRule((await client.diagnosticsOf(u2, 1)).diagnostics)[0].severity).toBe(DiagnosticSeverity.Hint);
     expect(uri).toBeDefined();
+  });
+});
+
+describe('the extension\'s requests', () => {
+  it('regwise/applySafeFixes returns one edit with every safe fix; regwise/modelStructure lists the layers', async () => {
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root, capabilities: PUSH_CAPS });
+    const { uri, text } = await open(client, path.join(root, 'models.py'));
+    await client.diagnosticsOf(uri, 1);
+    const edit = await client.conn.sendRequest<WorkspaceEdit | null>('regwise/applySafeFixes', { uri });
+    expect(applyTextEdits(text, editsFor(edit ?? undefined, uri))).toBe(text.replace(STEM_CONV, STEM_CONV.replace(')', ', bias=False)')));
+    const table = await client.conn.sendRequest<string>('regwise/modelStructure', { uri });
+    expect(table).toMatch(/^Stem {2}\(models\.py:\d+\)$/m);
+    expect(table).toMatch(/^ {2}conv +nn\.Conv2d +in_channels=3, out_channels=32, kernel_size=5, stride=2, padding=2/m);
+    expect(table).toContain('→ bn');
+  });
+
+  it('regwise/scanWorkspace reports every file and then publishes diagnostics for unopened ones', async () => {
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root, capabilities: PUSH_CAPS });
+    const r = await client.conn.sendRequest<{ files: number; findings: number }>('regwise/scanWorkspace');
+    expect(r.files).toBe(fs.readdirSync(root).filter((f) => f.endsWith('.py')).length);
+    expect(r.findings).toBeGreaterThan(0);
+    const legacy = uriOf(path.join(root, 'legacy.py'));
+    const pub = await client.waitFor('legacy.py diagnostics', () => client.diagnostics.get(legacy)?.find((p) => ofRule(p.diagnostics).length));
+    expect(ofRule(pub.diagnostics)[0].range).toEqual(rangeOf(readFile(path.join(root, 'legacy.py')), 'nn.Conv2d(c_in, c_out, kernel_size=3, padding=1)'));
   });
 });
 
@@ -382,6 +441,39 @@ describe('notebook documents', () => {
       change: { cells: { textContent: [{ document: { uri: cellUri(2), version: 2 }, changes: edits.map((e) => ({ range: e.range, text: e.newText })) }] } },
     });
     expect(ofRule((await client.diagnosticsOf(cellUri(2), 2)).diagnostics)).toEqual([]);
+  });
+
+  it('pushes cell diagnostics to a pulling client too (VS Code pulls only for text documents) and answers cell pulls empty', async () => {
+    const root = copySample('pollinator_cnn');
+    const pull: ClientCapabilities = { textDocument: { diagnostic: {} }, workspace: { diagnostics: { refreshSupport: true } } };
+    const { client } = await start({ root, capabilities: pull });
+    const nbUri = uriOf(path.join(root, 'look3.ipynb'));
+    const cellUri = (i: number) => `vscode-notebook-cell:${path.join(root, 'look3.ipynb')}#P${i}`;
+    await client.conn.sendNotification(DidOpenNotebookDocumentNotification.type, {
+      notebookDocument: { uri: nbUri, notebookType: 'jupyter-notebook', version: 1, cells: cells.map((c, i) => ({ kind: c.kind, document: cellUri(i) })) },
+      cellTextDocuments: cells.map((c, i) => ({ uri: cellUri(i), languageId: c.kind === NotebookCellKind.Code ? 'python' : 'markdown', version: 1, text: c.text })),
+    });
+    const pushed = await client.waitFor('pushed cell diagnostics', () => client.diagnostics.get(cellUri(2))?.find((p) => ofRule(p.diagnostics).length));
+    expect(ofRule(pushed.diagnostics)[0].range).toEqual(rangeOf(cells[2].text, 'nn.Conv2d(3, 8, 3)'));
+    const pulled = (await client.conn.sendRequest(DocumentDiagnosticRequest.type, { textDocument: { uri: cellUri(2) } })) as FullDocumentDiagnosticReport;
+    expect(pulled.items).toEqual([]);
+  });
+
+  it('answers hover inside a cell with the cell\'s own positions', async () => {
+    const root = copySample('pollinator_cnn');
+    const { client } = await start({ root, capabilities: PUSH_CAPS });
+    const nbUri = uriOf(path.join(root, 'look4.ipynb'));
+    const cellUri = (i: number) => `vscode-notebook-cell:${path.join(root, 'look4.ipynb')}#H${i}`;
+    await client.conn.sendNotification(DidOpenNotebookDocumentNotification.type, {
+      notebookDocument: { uri: nbUri, notebookType: 'jupyter-notebook', version: 1, cells: cells.map((c, i) => ({ kind: c.kind, document: cellUri(i) })) },
+      cellTextDocuments: cells.map((c, i) => ({ uri: cellUri(i), languageId: c.kind === NotebookCellKind.Code ? 'python' : 'markdown', version: 1, text: c.text })),
+    });
+    await client.diagnosticsOf(cellUri(2), 1);
+    const at = rangeOf(cells[2].text, 'nn.BatchNorm2d(8)').start;
+    const hover = await client.conn.sendRequest(HoverRequest.type, { textDocument: { uri: cellUri(2) }, position: { line: at.line, character: at.character + 3 } });
+    const md = (hover!.contents as MarkupContent).value;
+    expect(md).toContain('layer `Tiny.bn`');
+    expect(md).toContain('torch.nn.BatchNorm2d(num_features=8');
   });
 
   it('follows cell structure changes: a new cell joins the program in its place, a removed one is cleared', async () => {

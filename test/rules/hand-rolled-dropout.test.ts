@@ -11,6 +11,14 @@ test('hand-rolled-dropout', async () => {
   await runRuleTable(rule as unknown as Rule, {
     valid: [
       {
+        name: 'zoneout: m * previous + (1 - m) * new keeps every unit from one side, nothing to rescale',
+        code: cls('        h = self.conv(x)\n        if self.training:\n            mask = torch.bernoulli(torch.full_like(h, self.p))\n            h = mask * x + (1 - mask) * h\n        else:\n            h = self.p * x + (1 - self.p) * h\n        return h\n'),
+      },
+      {
+        name: 'DropBlock rescales by the count of kept units (numel / sum) instead of 1/keep',
+        code: cls('        if not self.training:\n            return x\n        mask = (torch.rand(x.shape[0], *x.shape[2:], device=x.device) < self.p).float()\n        block = 1 - torch.nn.functional.max_pool2d(mask[:, None], 3, 1, 1)\n        out = x * block\n        return out * block.numel() / block.sum()\n'),
+      },
+      {
         name: 'residual drop-path gated by self.training and rescaled by 1/keep',
         code: cls('        out = self.conv(x)\n        if self.training and self.p > 0.0:\n            keep = 1.0 - self.p\n            mask = torch.bernoulli(torch.full((out.shape[0], 1, 1, 1), keep, device=out.device))\n            out = out * mask / keep\n        return out + x\n'),
       },
@@ -36,6 +44,10 @@ test('hand-rolled-dropout', async () => {
       },
     ],
     invalid: [
+      {
+        name: 'a masked term added to an unmasked one is no complement mix',
+        code: cls('        h = self.conv(x)\n        if self.training:\n            mask = torch.bernoulli(torch.full_like(h, self.p))\n            h = mask * x + h\n#               ^^^^^^^^ hand-rolled-dropout:noRescale\n        return h\n'),
+      },
       {
         name: 'Keras SpatialDropout port: neither rescaled nor gated',
         code: cls('        mask = (torch.rand(x.shape[0], x.shape[1], 1, 1, device=x.device) > self.p).float()\n        return x * mask\n#              ^^^^^^^^ hand-rolled-dropout:neither\n'),

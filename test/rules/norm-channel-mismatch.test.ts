@@ -10,6 +10,14 @@ test('norm-channel-mismatch', async () => {
   await runRuleTable(rule as unknown as Rule, {
     valid: [
       {
+        name: 'DenseNet: blocks and transitions registered with add_module("denseblock%d" % (i + 1)) before norm5',
+        code: `${H}class Layer(nn.Module):\n    def __init__(self, i, g):\n        super().__init__()\n        self.norm1 = nn.BatchNorm2d(i)\n        self.conv1 = nn.Conv2d(i, g, 3, padding=1, bias=False)\n    def forward(self, feats):\n        return self.conv1(F.relu(self.norm1(torch.cat(feats, 1))))\nclass Block(nn.ModuleDict):\n    def __init__(self, n, i, g):\n        super().__init__()\n        for k in range(n):\n            self.add_module("denselayer%d" % (k + 1), Layer(i + k * g, g))\n    def forward(self, x):\n        feats = [x]\n        for name, layer in self.items():\n            feats.append(layer(feats))\n        return torch.cat(feats, 1)\nclass Transition(nn.Sequential):\n    def __init__(self, i, o):\n        super().__init__()\n        self.norm = nn.BatchNorm2d(i)\n        self.conv = nn.Conv2d(i, o, 1, bias=False)\nclass DenseNet(nn.Module):\n    def __init__(self, growth=4, cfg=(2, 2), init=8):\n        super().__init__()\n        self.features = nn.Sequential(nn.Conv2d(3, init, 3, bias=False), nn.BatchNorm2d(init), nn.ReLU())\n        c = init\n        for i, n in enumerate(cfg):\n            self.features.add_module("denseblock%d" % (i + 1), Block(n, c, growth))\n            c = c + n * growth\n            if i != len(cfg) - 1:\n                self.features.add_module(f"transition{i + 1}", Transition(c, c // 2))\n                c = c // 2\n        self.features.add_module("norm5", nn.BatchNorm2d(c))\n    def forward(self, x):\n        return self.features(x)\n`,
+      },
+      {
+        name: 'a block registered under a name the engine cannot spell is not skipped over',
+        code: `${H}class DenseNet(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.features = nn.Sequential(nn.Conv2d(3, 8, 3, bias=False), nn.MaxPool2d(2))\n        for i in range(2):\n            self.features.add_module(f"block{i:02d}", nn.Conv2d(8 + 8 * i, 16 + 8 * i, 1, bias=False))\n        self.features.add_module("norm5", nn.BatchNorm2d(24))\n    def forward(self, x):\n        return self.features(x)\n`,
+      },
+      {
         name: 'torch.cat of two 64-channel branches feeds BatchNorm2d(128)',
         code: `${H}class M(nn.Module):\n    def __init__(self):\n        super().__init__()\n        self.a = nn.Conv2d(32, 64, 1)\n        self.b = nn.Conv2d(32, 64, 3, padding=1)\n        self.bn = nn.BatchNorm2d(128)\n    def forward(self, x):\n        return self.bn(torch.cat([self.a(x), self.b(x)], dim=1))\n`,
       },

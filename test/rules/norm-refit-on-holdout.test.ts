@@ -12,6 +12,14 @@ test('norm-refit-on-holdout', async () => {
   await runRuleTable(rule as unknown as Rule, {
     valid: [
       {
+        name: 'a helper that fits only when no scaler is passed (`if scaler is None`), given the training scaler for the test part',
+        code: `${SK}def preprocess(X, scaler=None):\n    if scaler is None:\n        scaler = StandardScaler().fit(X)\n    return scaler.transform(X), scaler\ndef holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y)\n    X_train, scaler = preprocess(X_train)\n    X_test, _ = preprocess(X_test, scaler)\n    return X_train, X_test\n`,
+      },
+      {
+        name: 'the same guard written `if not scaler` and `if scaler is not None: ... else: fit`, scaler passed by keyword',
+        code: `${SK}def prep_a(X, scaler=None):\n    if not scaler:\n        scaler = StandardScaler().fit(X)\n    return scaler.transform(X)\ndef prep_b(X, scaler=None):\n    if scaler is not None:\n        return scaler.transform(X)\n    else:\n        return StandardScaler().fit_transform(X)\ndef holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y)\n    s = StandardScaler().fit(X_train)\n    return prep_a(X_test, scaler=s), prep_b(X_test, scaler=s)\n`,
+      },
+      {
         name: 'Pipeline fitted on the training part',
         code: `${SK}def holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y)\n    pipe = make_pipeline(StandardScaler(), LogisticRegression()).fit(X_train, y_train)\n    return pipe.score(X_test, y_test)\n`,
       },
@@ -37,6 +45,10 @@ test('norm-refit-on-holdout', async () => {
       },
     ],
     invalid: [
+      {
+        name: 'the guarded helper called on the test part without a scaler still fits on it',
+        code: `${SK}def preprocess(X, scaler=None):\n    if scaler is None:\n        scaler = StandardScaler().fit(X)\n#                ^^^^^^^^^^^^^^^^^^^^^^^ norm-refit-on-holdout:refit\n    return scaler.transform(X), scaler\ndef holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y)\n    X_test, _ = preprocess(X_test)\n    return X_test\n`,
+      },
       {
         name: 'fit_transform on the test part of train_test_split, with the safe fix',
         code: `${SK}def holdout(X, y):\n    X_train, X_test, y_train, y_test = train_test_split(X, y, test_size=0.25)\n    scaler = StandardScaler()\n    X_train = scaler.fit_transform(X_train)\n    X_test = scaler.fit_transform(X_test)\n#            ^^^^^^^^^^^^^^^^^^^^^^^^^^^^ norm-refit-on-holdout:refit\n    return LogisticRegression().fit(X_train, y_train).score(X_test, y_test)\n`,

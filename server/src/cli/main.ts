@@ -14,7 +14,7 @@ import { Baseline, BaselineError, baselinePath, writeBaseline } from './baseline
 import { changedSince, GitError } from './git';
 import { fingerprints } from './fingerprint';
 import { applyFixesToFiles } from './fixer';
-import { analyzeInWorkers, defaultJobs, factsInWorkers, workerScript } from './pool';
+import { PARALLEL_RULES_MIN_LINES, analyzeInWorkers, defaultJobs, factsInWorkers, workerScript } from './pool';
 import { Progress } from './progress';
 import { displayPath, jsonReport, summarize, toReportFinding, type Report } from './report';
 import { sarifReport } from './sarif';
@@ -155,6 +155,12 @@ function analyzeAll(engine: Engine, paths: readonly string[], progress: Progress
   }));
 }
 
+function countLines(text: string): number {
+  let n = 0;
+  for (let i = text.indexOf('\n'); i !== -1; i = text.indexOf('\n', i + 1)) n++;
+  return n;
+}
+
 /** Per-file results in file order → one list: first copy of each finding kept, sorted stably (as Engine.analyze does). */
 function mergeFindings(perFile: readonly Finding[][]): Finding[] {
   const seen = new Set<string>();
@@ -196,36 +202,36 @@ async function scan(args: string[], io: Io): Promise<number> {
   const sources = collected.sources.map(sourceOf);
   const paths = sources.map((s) => s.path);
   const script = workerScript();
-  let findings: Finding[];
   let workers = 0;
-  // the main thread's engine: filled now when it runs the rules itself, later only if --fix needs it
-  let loadMain: () => void;
-  let mainLoaded = false;
-  if (jobs > 1 && script && sources.length > 1 && process.env.REGWISE_PARALLEL === 'facts') {
-    const r = await factsInWorkers(script, jobs, sources.map((s) => s.text), (done) => progress.update('parsing', done, sources.length));
-    workers = r.workers;
+  const lines = sources.reduce((n, s) => n + countLines(s.text), 0);
+  // REGWISE_PARALLEL=facts|rules forces a mode (tests check both give the --jobs 1 report)
+  const parallel = jobs > 1 && script && sources.length > 1
+    ? (env.REGWISE_PARALLEL === 'facts' || env.REGWISE_PARALLEL === 'rules' ? env.REGWISE_PARALLEL : lines >= PARALLEL_RULES_MIN_LINES ? 'rules' : 'facts')
+    : undefined;
+  let findings: Finding[];
+  // the main thread's engine: filled now unless workers ran the rules; then only if --fix needs it
+  let mainLoaded = true;
+  const loadMain = () => {
     for (const d of collected.data) engine.setDataFile(d.rel, d.text);
-    sources.forEach((s, i) => engine.setFileFacts(s, r.facts[i]));
-    mainLoaded = true;
-    loadMain = () => {};
-    findings = analyzeAll(engine, paths, progress);
-  } else if (jobs > 1 && script && sources.length > 1) {
-    const r = await analyzeInWorkers(script, jobs, sources, collected.data, engineOptions(cfg), paths, (phase, done, total) => progress.update(phase, done, total));
+    for (const s of sources) engine.setSource(s);
+  };
+  if (parallel === 'rules') {
+    const r = await analyzeInWorkers(script!, jobs, sources, collected.data, engineOptions(cfg), paths, (phase, done, total) => progress.update(phase, done, total));
     workers = r.workers;
     findings = mergeFindings(r.findings);
-    // --fix re-analyses files on this thread: parse here then (fixing is rare; holding every file's facts is not free)
-    loadMain = () => {
-      for (const d of collected.data) engine.setDataFile(d.rel, d.text);
-      for (const s of sources) engine.setSource(s);
-    };
+    mainLoaded = false;
   } else {
     for (const d of collected.data) engine.setDataFile(d.rel, d.text);
-    sources.forEach((s, i) => {
-      engine.setSource(s);
-      progress.update('parsing', i + 1, sources.length);
-    });
-    mainLoaded = true;
-    loadMain = () => {};
+    if (parallel === 'facts') {
+      const r = await factsInWorkers(script!, jobs, sources.map((s) => s.text), (done) => progress.update('parsing', done, sources.length));
+      workers = r.workers;
+      sources.forEach((s, i) => engine.setFileFacts(s, r.facts[i]));
+    } else {
+      sources.forEach((s, i) => {
+        engine.setSource(s);
+        progress.update('parsing', i + 1, sources.length);
+      });
+    }
     findings = analyzeAll(engine, paths, progress);
   }
   const tRules = Date.now();
@@ -285,7 +291,7 @@ async function scan(args: string[], io: Io): Promise<number> {
   else io.out(text);
   if (env.REGWISE_STATS) {
     const phases = { walkRead: tRead - started, analyse: tRules - tRead, rest: Date.now() - tRules };
-    io.err(`regwise-stats ${JSON.stringify({ ms: Date.now() - started, phases, files: paths.length, maxRssKB: process.resourceUsage().maxRSS, jobs, workers })}\n`);
+    io.err(`regwise-stats ${JSON.stringify({ ms: Date.now() - started, phases, files: paths.length, lines, maxRssKB: process.resourceUsage().maxRSS, jobs, workers, parallel: parallel ?? 'none' })}\n`);
   }
   const threshold = FAIL_RANK[failLevel];
   return shown.some((f) => LEVEL_RANK[f.level] >= threshold) ? 1 : 0;

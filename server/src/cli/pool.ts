@@ -1,4 +1,4 @@
-// `--jobs N`: worker threads extract facts for shares of the files, then each loads the whole workspace and checks a share.
+// `--jobs N`: worker threads extract facts for batches of files; on large scans each also loads the workspace and checks a share.
 import * as fs from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
@@ -112,63 +112,17 @@ class Pool {
   }
 }
 
-export interface ParallelResult {
-  /** Per target path, in the order given, what `engine.analyze([path], views)` returned in a worker. */
-  findings: Finding[][];
-  workers: number;
-}
+/**
+ * Above this many lines the rule checks are spread over the workers as well. Each worker then loads the whole workspace
+ * and the views build their workspace-wide indexes once per worker: repeated work and memory that pay off only when the
+ * per-file checks dominate (measured on the benchmark corpus: slower at 20k lines, about 2x faster at 250k).
+ */
+export const PARALLEL_RULES_MIN_LINES = 60_000;
 
 /**
- * Extracts facts in `jobs` workers, loads the full workspace into each, and analyses `targets` spread over them.
- * Every answer is a pure function of the workspace and the target, so scheduling cannot change the result.
+ * Facts of every text, in input order, extracted by up to `jobs` workers; each batch goes to the next idle worker.
+ * The facts of text i are extractFacts(text i) whichever worker made them, so the result does not depend on scheduling.
  */
-export async function analyzeInWorkers(
-  script: string,
-  jobs: number,
-  sources: readonly SourceFile[],
-  data: readonly { rel: string; text: string }[],
-  options: EngineOptions,
-  targets: readonly string[],
-  onProgress?: (phase: string, done: number, total: number) => void,
-): Promise<ParallelResult> {
-  const total = sources.reduce((n, s) => n + s.text.length, 0);
-  const factBatches = batches(sources.map((s) => s.text.length), Math.max(8 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
-  const pool = new Pool(script, Math.max(1, Math.min(jobs, factBatches.length)));
-  try {
-    await pool.start();
-    const buffers: Uint8Array[] = new Array(factBatches.length);
-    let parsed = 0;
-    await pool.each(factBatches.map((b, i) => ({ b, i })), async (k, { b, i }) => {
-      const r = await pool.ask(k, { type: 'facts', texts: b.map((j) => sources[j].text) });
-      if (r.type !== 'facts') throw new Error('unexpected worker answer');
-      buffers[i] = r.facts;
-      parsed += b.length;
-      onProgress?.('parsing', parsed, sources.length);
-    });
-    // every worker gets the whole workspace: rules see cross-file facts exactly as a single thread would
-    const loaded = Array.from({ length: pool.size }, (_, k) => pool.ask(k, { type: 'load', sources: [...sources], facts: buffers, data: [...data], options }));
-    // postMessage has copied them to every worker: the main thread keeps no facts (it reads them only for --fix)
-    buffers.length = 0;
-    await Promise.all(loaded);
-    const findings: Finding[][] = new Array(targets.length);
-    const chunk = Math.max(1, Math.ceil(targets.length / (pool.size * 16)));
-    const chunks: number[][] = [];
-    for (let i = 0; i < targets.length; i += chunk) chunks.push(Array.from({ length: Math.min(chunk, targets.length - i) }, (_, j) => i + j));
-    let checked = 0;
-    await pool.each(chunks, async (k, idx) => {
-      const r = await pool.ask(k, { type: 'analyze', targets: idx.map((i) => targets[i]) });
-      if (r.type !== 'analyzed') throw new Error('unexpected worker answer');
-      idx.forEach((i, j) => (findings[i] = r.findings[j]));
-      checked += idx.length;
-      onProgress?.('analysing', checked, targets.length);
-    });
-    return { findings, workers: pool.size };
-  } finally {
-    await pool.close();
-  }
-}
-
-/** Facts only: workers parse and extract shares of the files; the caller's engine takes them and runs the rules. */
 export async function factsInWorkers(script: string, jobs: number, texts: readonly string[], onProgress?: (done: number) => void): Promise<{ facts: FileFacts[]; workers: number }> {
   const total = texts.reduce((n, t) => n + t.length, 0);
   const factBatches = batches(texts.map((t) => t.length), Math.max(8 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
@@ -186,6 +140,56 @@ export async function factsInWorkers(script: string, jobs: number, texts: readon
       onProgress?.(done);
     });
     return { facts, workers: pool.size };
+  } finally {
+    await pool.close();
+  }
+}
+
+/**
+ * Extracts facts in the workers, loads the full workspace into each, and analyses `targets` spread over them: per target
+ * path, in the order given, what `engine.analyze([path], views)` returns. Every answer is a pure function of the
+ * workspace and the target, so scheduling cannot change the result.
+ */
+export async function analyzeInWorkers(
+  script: string,
+  jobs: number,
+  sources: readonly SourceFile[],
+  data: readonly { rel: string; text: string }[],
+  options: EngineOptions,
+  targets: readonly string[],
+  onProgress?: (phase: string, done: number, total: number) => void,
+): Promise<{ findings: Finding[][]; workers: number }> {
+  const total = sources.reduce((n, s) => n + s.text.length, 0);
+  const factBatches = batches(sources.map((s) => s.text.length), Math.max(8 * 1024, Math.min(1024 * 1024, Math.ceil(total / (jobs * 8)))));
+  const pool = new Pool(script, Math.max(1, Math.min(jobs, factBatches.length)));
+  try {
+    await pool.start();
+    const buffers: Uint8Array[] = new Array(factBatches.length);
+    let parsed = 0;
+    await pool.each(factBatches.map((b, i) => ({ b, i })), async (k, { b, i }) => {
+      const r = await pool.ask(k, { type: 'facts', texts: b.map((j) => sources[j].text) });
+      if (r.type !== 'facts') throw new Error('unexpected worker answer');
+      buffers[i] = r.facts;
+      parsed += b.length;
+      onProgress?.('parsing', parsed, sources.length);
+    });
+    // every worker gets the whole workspace: rules see cross-file facts exactly as a single thread would
+    const loaded = Array.from({ length: pool.size }, (_, k) => pool.ask(k, { type: 'load', sources: [...sources], facts: buffers, data: [...data], options }));
+    buffers.length = 0; // postMessage copied them; the main thread keeps no facts
+    await Promise.all(loaded);
+    const findings: Finding[][] = new Array(targets.length);
+    const chunk = Math.max(1, Math.ceil(targets.length / (pool.size * 16)));
+    const chunks: number[][] = [];
+    for (let i = 0; i < targets.length; i += chunk) chunks.push(Array.from({ length: Math.min(chunk, targets.length - i) }, (_, j) => i + j));
+    let checked = 0;
+    await pool.each(chunks, async (k, idx) => {
+      const r = await pool.ask(k, { type: 'analyze', targets: idx.map((i) => targets[i]) });
+      if (r.type !== 'analyzed') throw new Error('unexpected worker answer');
+      idx.forEach((i, j) => (findings[i] = r.findings[j]));
+      checked += idx.length;
+      onProgress?.('analysing', checked, targets.length);
+    });
+    return { findings, workers: pool.size };
   } finally {
     await pool.close();
   }

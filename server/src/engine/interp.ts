@@ -2,7 +2,7 @@
 // instances from __init__ and traces tensors through forward. It never runs user code and gives up as `unknown`.
 import * as posix from 'node:path/posix';
 import type { CallExpr, ClassStmt, DefStmt, Expr, Stmt } from './ir';
-import { walkStmts } from './ir';
+import { walkExpr, walkStmts } from './ir';
 import type { Workspace } from './workspace';
 import { loadConfig } from './configs';
 import {
@@ -20,6 +20,14 @@ export interface FlowRecorder {
   /** For each called leaf, the tensor it was called on (channels, rank) the last time. */
   inputs: Map<ModuleInst, Extract<Value, { t: 'tensor' }>>;
   called: Set<ModuleInst>;
+  /** Layers whose output was an operand of arithmetic (`a + b`, `out += x`) while tracing. */
+  operands?: Set<ModuleInst>;
+}
+
+function noteOperands(frame: Frame, ...vals: Value[]): void {
+  const rec = frame.recorder;
+  if (!rec) return;
+  for (const v of vals) if (isTensor(v)) for (const m of v.from) (rec.operands ??= new Set()).add(m);
 }
 
 export interface Frame {
@@ -294,6 +302,7 @@ export class Interp {
       case 'augassign': {
         const cur = this.evalExpr(s.target, frame);
         const rhs = this.evalExpr(s.value, frame);
+        noteOperands(frame, cur, rhs);
         if (cur.t === 'list' && s.op === '+=' && rhs.t === 'list') {
           cur.items.push(...rhs.items);
           return;
@@ -465,7 +474,7 @@ export class Interp {
   evalExpr(e: Expr, frame: Frame): Value {
     switch (e.k) {
       case 'num': return { t: 'num', v: e.value, origin: { path: frame.path, line: e.span.line, span: e.span } };
-      case 'str': return e.fstring ? UNKNOWN : { t: 'str', v: e.value, origin: { path: frame.path, line: e.span.line, span: e.span } };
+      case 'str': return e.fstring ? this.fstring(e, frame) : { t: 'str', v: e.value, origin: { path: frame.path, line: e.span.line, span: e.span } };
       case 'bool': return { t: 'bool', v: e.value, origin: { path: frame.path, line: e.span.line, span: e.span } };
       case 'none': return NONE;
       case 'name': return this.lookup(frame.scope, e.id);
@@ -496,7 +505,12 @@ export class Interp {
         }
         return { t: 'dict', map, origin: { path: frame.path, line: e.span.line } };
       }
-      case 'bin': return this.binop(e.op, this.evalExpr(e.left, frame), this.evalExpr(e.right, frame));
+      case 'bin': {
+        const l = this.evalExpr(e.left, frame);
+        const r = this.evalExpr(e.right, frame);
+        noteOperands(frame, l, r);
+        return this.binop(e.op, l, r);
+      }
       case 'unary': {
         const v = this.evalExpr(e.operand, frame);
         if (e.op === 'not') {
@@ -536,10 +550,37 @@ export class Interp {
         frame.scope.vars.set(e.target, v);
         return v;
       }
-      case 'lambda': return UNKNOWN;
+      case 'lambda': return { t: 'func', fn: { name: '<lambda>', path: frame.path, stmt: lambdaDef(e), scope: frame.scope } };
       case 'star': return this.evalExpr(e.value, frame);
       default: return UNKNOWN;
     }
+  }
+
+  /**
+   * `f"denseblock{i + 1}"` with constant ints and strings in plain fields; fields that call something (whose
+   * evaluation could be seen as a model call) or carry a conversion or format spec stay unknown.
+   */
+  private fstring(e: Extract<Expr, { k: 'str' }>, frame: Frame): Value {
+    if (!e.parts) return UNKNOWN;
+    let out = '';
+    for (const p of e.parts) {
+      if (typeof p === 'string') {
+        out += p;
+        continue;
+      }
+      let pure = p.plain;
+      if (pure) walkExpr(p.expr, (x) => {
+        // true division gives a float, which Python prints as `2.0` where a number here would print `2`
+        if (x.k === 'call' || x.k === 'walrus' || x.k === 'lambda' || x.k === 'comp' || x.k === 'unknown' || (x.k === 'bin' && x.op === '/')) pure = false;
+        return pure;
+      });
+      if (!pure) return UNKNOWN;
+      const v = this.evalExpr(p.expr, frame);
+      if (v.t === 'str') out += v.v;
+      else if (v.t === 'num' && Number.isInteger(v.v)) out += String(v.v);
+      else return UNKNOWN;
+    }
+    return { t: 'str', v: out };
   }
 
   private comprehension(e: Extract<Expr, { k: 'comp' }>, frame: Frame): Value {
@@ -587,7 +628,7 @@ export class Interp {
       return { t: 'list', items: Array.from({ length: Math.max(0, n) }, () => a.items).flat(), tuple: a.tuple };
     }
     if (a.t === 'str' && b.t === 'str' && op === '+') return { t: 'str', v: a.v + b.v };
-    if (a.t === 'str' && op === '%') return UNKNOWN;
+    if (a.t === 'str' && op === '%') return formatPercent(a.v, b);
     if (op === '/' && (isPathLike(a))) {
       const base = pathOf(a);
       const rest = b.t === 'str' ? b.v : pathOf(b);
@@ -628,6 +669,8 @@ export class Interp {
         else if (a.t === 'none' || b.t === 'none') r = a.t === b.t;
         else if ((a.t === 'num' || a.t === 'bool') && (b.t === 'num' || b.t === 'bool')) r = num(a) === num(b);
         else if (a.t === 'str' && b.t === 'str') r = a.v === b.v;
+        // `v == "M"` over a cfg list of ints and "M" markers: a number never equals a string in Python
+        else if ((a.t === 'str' && (b.t === 'num' || b.t === 'bool')) || (b.t === 'str' && (a.t === 'num' || a.t === 'bool'))) r = false;
         else if (a.t === 'module' && b.t === 'module') r = a.m === b.m;
         else if (a.t === 'ext' && b.t === 'ext') r = a.q === b.q ? true : undefined;
         else if ((a.t === 'module' || a.t === 'class' || a.t === 'func' || a.t === 'list') && (b.t === 'str' || b.t === 'num')) r = false;
@@ -716,6 +759,10 @@ export class Interp {
         for (const c of chain.slice(i + 1)) {
           const s = c.stmt.body.find((x) => x.k === 'def' && x.name === attr);
           if (s && s.k === 'def') return { t: 'func', fn: this.funcInfo(s, c.scope, c.path, c), self: obj.self };
+        }
+        // the library constructor of a Sequential/ModuleList/ModuleDict subclass registers the layers passed to it
+        if (attr === '__init__' && obj.self.t === 'module' && this.containerKind(obj.self.m) !== undefined) {
+          return { t: 'obj', q: 'super.__init__', args: [], kwargs: new Map(), state: new Map([['__bound__', obj.self]]) };
         }
         return { t: 'ext', q: `super.${attr}` };
       }
@@ -908,13 +955,10 @@ export class Interp {
     if (!rec) return UNKNOWN;
     const input = args[0] ?? kwargs.get('input') ?? UNKNOWN;
     switch (m.kind) {
-      case 'sequential': {
-        let x = input;
-        for (const [, child] of m.children) x = this.callModule(child, [x], new Map(), frame);
-        return x;
-      }
+      case 'sequential': return this.runSequential(m, input, frame);
       case 'user': {
         const fwd = m.cls ? this.classMember(m.cls, 'forward') : undefined;
+        if (!fwd && m.children.length && this.containerKind(m) === 'sequential') return this.runSequential(m, input, frame);
         const out = fwd && fwd.value.t === 'func' ? this.callFunction(fwd.value.fn, { t: 'module', m }, args, kwargs, frame) : freshTensor();
         if (m.children.length) return out;
         // a user module without submodules is a leaf of named_modules(): like a library layer it consumes the
@@ -940,6 +984,27 @@ export class Interp {
       default:
         return freshTensor();
     }
+  }
+
+  /**
+   * nn.Sequential.forward: each child takes the previous one's output. When some registration could not be
+   * followed, the order has a hole, so each child gets a tensor of unknown origin rather than a made-up neighbour.
+   */
+  private runSequential(m: ModuleInst, input: Value, frame: Frame): Value {
+    let x = input;
+    for (const [, child] of m.children) x = this.callModule(child, [m.incomplete ? freshTensor() : x], new Map(), frame);
+    return m.incomplete ? freshTensor() : x;
+  }
+
+  /** The library container a module is or subclasses (user classes deriving from nn.Sequential count). */
+  containerKind(m: ModuleInst): 'sequential' | 'modulelist' | 'moduledict' | undefined {
+    if (m.kind === 'sequential' || m.kind === 'modulelist' || m.kind === 'moduledict') return m.kind;
+    if (m.kind !== 'user' || !m.cls) return undefined;
+    const ext = this.externalBases(m.cls);
+    if (ext.includes('torch.nn.Sequential')) return 'sequential';
+    if (ext.includes('torch.nn.ModuleList')) return 'modulelist';
+    if (ext.includes('torch.nn.ModuleDict')) return 'moduledict';
+    return undefined;
   }
 
   private callMethod(callee: Extract<Value, { t: 'obj' }>, args: Value[], kwargs: Map<string, Value>, frame: Frame, site?: CallExpr): Value {
@@ -986,21 +1051,34 @@ export class Interp {
     }
     if (bound?.t === 'module') {
       const m = bound.m;
-      if ((method === 'add_module' || method === 'register_module') && args[1]?.t === 'module') {
-        const name = str(args[0]);
-        if (name !== undefined) registerChild(m, name, args[1].m);
+      const container = this.containerKind(m);
+      if (method === '__init__' && callee.q === 'super.__init__') {
+        if (container === 'sequential') fillSequential(m, args);
+        else if (args[0]) fillContainer(m, args[0], (v) => this.iterate(v));
         return NONE;
       }
-      if (method === 'append' && args[0]?.t === 'module' && (m.kind === 'modulelist' || m.kind === 'sequential')) {
-        m.children.push([String(m.children.length), args[0].m]);
+      if (method === 'add_module' || method === 'register_module') {
+        const name = str(args[0]);
+        if (name !== undefined && args[1]?.t === 'module') registerChild(m, name, args[1].m);
+        else if (args[1]?.t !== 'none') m.incomplete = true;
+        return NONE;
+      }
+      if (method === 'append' && (container === 'modulelist' || container === 'sequential')) {
+        if (args[0]?.t === 'module') m.children.push([String(m.children.length), args[0].m]);
+        else m.incomplete = true;
         return bound;
       }
-      if (method === 'extend' && (m.kind === 'modulelist' || m.kind === 'sequential')) {
-        for (const x of this.iterate(args[0] ?? UNKNOWN) ?? []) if (x.t === 'module') m.children.push([String(m.children.length), x.m]);
+      if (method === 'extend' && (container === 'modulelist' || container === 'sequential')) {
+        const items = this.iterate(args[0] ?? UNKNOWN);
+        if (!items) m.incomplete = true;
+        for (const x of items ?? []) {
+          if (x.t === 'module') m.children.push([String(m.children.length), x.m]);
+          else m.incomplete = true;
+        }
         return bound;
       }
       if ((method === 'children' || method === 'values') && m.kind !== 'leaf') return { t: 'list', items: m.children.map(([, c]) => ({ t: 'module', m: c })), tuple: false };
-      if (method === 'items' && m.kind === 'moduledict') return { t: 'list', items: m.children.map(([n, c]) => ({ t: 'list', items: [{ t: 'str', v: n }, { t: 'module', m: c }], tuple: true })), tuple: false };
+      if (method === 'items' && container === 'moduledict') return { t: 'list', items: m.children.map(([n, c]) => ({ t: 'list', items: [{ t: 'str', v: n }, { t: 'module', m: c }], tuple: true })), tuple: false };
       // init loops (`for m in self.modules()`, `self.apply(fn)`) see the modules registered so far, as at runtime
       if (method === 'modules') return { t: 'list', items: subtree(m).map(([, x]) => ({ t: 'module', m: x })), tuple: false };
       if (method === 'named_modules') return { t: 'list', items: subtree(m).map(([n, x]) => ({ t: 'list', items: [{ t: 'str', v: n }, { t: 'module', m: x }], tuple: true })), tuple: false };
@@ -1354,6 +1432,35 @@ function subtree(root: ModuleInst): [string, ModuleInst][] {
   return out;
 }
 
+/** `'%d' % 3`, `'%s_%d' % (a, b)` with constant operands; anything else (widths, `%(k)s`, unknowns) is unknown. */
+function formatPercent(fmt: string, rhs: Value): Value {
+  const vals = rhs.t === 'list' && rhs.tuple ? rhs.items : [rhs];
+  let i = 0;
+  let ok = true;
+  const out = fmt.replace(/%([%dis])/g, (_, c: string) => {
+    if (c === '%') return '%';
+    const v = vals[i++];
+    // `%s` of a number is left out: an int and a float that are equal print differently (`2` / `2.0`)
+    if (v?.t === 'num' && c !== 's') return String(Math.trunc(v.v));
+    if (v?.t === 'str' && c === 's') return v.v;
+    ok = false;
+    return '';
+  });
+  if (!ok || i !== vals.length || /%/.test(fmt.replace(/%[%dis]/g, ''))) return UNKNOWN;
+  return { t: 'str', v: out };
+}
+
+const lambdaDefs = new WeakMap<Expr, DefStmt>();
+/** A lambda as the one-statement function it is; cached so analyses keyed by statement see one definition. */
+function lambdaDef(e: Extract<Expr, { k: 'lambda' }>): DefStmt {
+  let d = lambdaDefs.get(e);
+  if (!d) {
+    d = { k: 'def', name: '<lambda>', params: e.params, decorators: [], body: [{ k: 'return', value: e.body, span: e.body.span }], span: e.span, nameSpan: e.span, bodySpan: e.body.span, async: false };
+    lambdaDefs.set(e, d);
+  }
+  return d;
+}
+
 function registerChild(m: ModuleInst, name: string, child: ModuleInst): void {
   // re-assigning a registered name keeps its place, as nn.Module's _modules dict does
   const i = m.children.findIndex(([n]) => n === name);
@@ -1364,12 +1471,34 @@ function registerChild(m: ModuleInst, name: string, child: ModuleInst): void {
 
 function fillSequential(m: ModuleInst, args: Value[]): void {
   if (args.length === 1 && args[0].t === 'dict') {
-    for (const [k, v] of args[0].map) if (v.t === 'module') m.children.push([k, v.m]);
+    for (const [k, v] of args[0].map) {
+      if (v.t === 'module') m.children.push([k, v.m]);
+      else m.incomplete = true;
+    }
     return;
   }
   args.forEach((a, i) => {
     if (a.t === 'module') m.children.push([String(i), a.m]);
+    else m.incomplete = true;
   });
+}
+
+/** ModuleList(iterable) / ModuleDict(mapping or pairs) given to a subclass's base constructor. */
+function fillContainer(m: ModuleInst, arg: Value, iterate: (v: Value) => Value[] | undefined): void {
+  if (arg.t === 'dict') {
+    for (const [k, v] of arg.map) v.t === 'module' ? m.children.push([k, v.m]) : (m.incomplete = true);
+    return;
+  }
+  const items = iterate(arg);
+  if (!items) {
+    if (arg.t !== 'none') m.incomplete = true;
+    return;
+  }
+  for (const x of items) {
+    if (x.t === 'module') m.children.push([String(m.children.length), x.m]);
+    else if (x.t === 'list' && x.items.length === 2 && x.items[1].t === 'module' && keyOf(x.items[0]) !== undefined) m.children.push([keyOf(x.items[0])!, x.items[1].m]);
+    else m.incomplete = true;
+  }
 }
 
 function isPathLike(v: Value): boolean {

@@ -21,7 +21,7 @@ export type Expr =
   | { k: 'attr'; obj: Expr; attr: string; span: Span; attrSpan: Span }
   | { k: 'call'; fn: Expr; args: Expr[]; kwargs: Keyword[]; starKwargs: Expr[]; span: Span; argsSpan: Span }
   | { k: 'num'; value: number; raw: string; span: Span }
-  | { k: 'str'; value: string; fstring: boolean; span: Span }
+  | { k: 'str'; value: string; fstring: boolean; parts?: FStringPart[]; span: Span }
   | { k: 'bool'; value: boolean; span: Span }
   | { k: 'none'; span: Span }
   | { k: 'list' | 'tuple' | 'set'; items: Expr[]; span: Span }
@@ -40,6 +40,13 @@ export type Expr =
   | { k: 'unknown'; span: Span; what: string };
 
 export type ExprKind = Expr['k'];
+
+/**
+ * A piece of an f-string: literal text, or a replacement field. `plain` is false when the field has a conversion,
+ * a format spec or `=`, whose rendering the interpreter does not reproduce. Fields are not children of the string
+ * for walks: only the interpreter reads them, to name layers registered as `add_module(f"layer{i}", ...)`.
+ */
+export type FStringPart = string | { expr: Expr; plain: boolean };
 
 export interface Param {
   name: string;

@@ -1,6 +1,6 @@
 // Lowers a tree-sitter Python tree into the engine's ModuleIR in one pass; never throws, degrades to `unknown`/`other`.
 import type { Tree, SyntaxNode } from './parser';
-import type { Expr, Keyword, ModuleIR, Param, Span, Stmt } from './ir';
+import type { Expr, FStringPart, Keyword, ModuleIR, Param, Span, Stmt } from './ir';
 
 /** Beyond this nesting depth subtrees become `unknown`: walks over the IR then never need deep recursion. */
 export const MAX_DEPTH = 200;
@@ -354,9 +354,9 @@ class Lowerer {
       case 'true': return { k: 'bool', value: true, span };
       case 'false': return { k: 'bool', value: false, span };
       case 'none': return { k: 'none', span };
-      case 'string': return this.string(n, span);
+      case 'string': return this.string(n, span, d);
       case 'concatenated_string': {
-        const parts = n.namedChildren.filter((c) => c?.type === 'string').map((c) => this.string(c!, this.span(c!)));
+        const parts = n.namedChildren.filter((c) => c?.type === 'string').map((c) => this.string(c!, this.span(c!), d));
         return { k: 'str', value: parts.map((p) => (p.k === 'str' ? p.value : '')).join(''), fstring: parts.some((p) => p.k === 'str' && p.fstring), span };
       }
       case 'parenthesized_expression': {
@@ -460,17 +460,28 @@ class Lowerer {
     }
   }
 
-  string(n: SyntaxNode, span: Span): Expr {
+  string(n: SyntaxNode, span: Span, d = 0): Expr {
     let fstring = false;
     let value = '';
+    const parts: FStringPart[] = [];
+    const text = (t: string) => {
+      value += t;
+      if (typeof parts[parts.length - 1] === 'string') parts[parts.length - 1] += t;
+      else parts.push(t);
+    };
     for (const c of n.children) {
       if (!c) continue;
       if (c.type === 'string_start') fstring = /f/i.test(c.text);
-      else if (c.type === 'string_content') value += unescape(c.text);
-      else if (c.type === 'escape_sequence') value += unescape(c.text);
-      else if (c.type === 'interpolation') fstring = true;
+      else if (c.type === 'string_content') text(unescape(c.text));
+      else if (c.type === 'escape_sequence') text(unescape(c.text));
+      else if (c.type === 'interpolation') {
+        fstring = true;
+        const inner = c.childForFieldName('expression');
+        const plain = !!inner && c.children.every((x) => !x || x.type === '{' || x.type === '}' || (x.startIndex === inner.startIndex && x.endIndex === inner.endIndex));
+        parts.push({ expr: this.expr(inner, d + 1), plain });
+      }
     }
-    return { k: 'str', value, fstring, span };
+    return fstring ? { k: 'str', value, fstring, parts, span } : { k: 'str', value, fstring, span };
   }
 }
 

@@ -51,6 +51,8 @@ export interface ModuleInst {
   given: Set<string>;
   /** Registered submodules in registration order. */
   children: [string, ModuleInst][];
+  /** Some registration could not be followed (unknown name or value), so `children` may miss one. */
+  incomplete?: boolean;
   /** Non-module attributes of user modules (`self.inplanes = 64`). */
   attrs: Map<string, Value>;
   cls?: ClassInfo;

@@ -1,9 +1,9 @@
-// Hover text: what the engine knows at a position (the layer built there, its resolved type, arguments and feeds)
-// and the findings covering it, each with its rule's one-line why.
+// Hover text: what the views know at a position (a layer's names, resolved type, arguments, feeds and training batch;
+// a DataLoader's batch and where it came from; a mode switch or evaluation region) and the findings there with a why.
 import type { Finding } from '../engine/types';
 import type { Rule } from '../engine/rule';
 import { originOf, pyRepr } from '../engine/values';
-import { ModelGraphs, type Layer, type ModelGraph } from '../engine/views/model-graph';
+import { ModelGraphs, nameModules, type Layer, type ModelGraph } from '../engine/views/model-graph';
 import type { Views } from '../engine/views';
 import { isLoader, perDeviceBatch, unwrap, type Mode } from '../engine/views/training';
 import type { Thresholds } from '../engine/types';
@@ -71,6 +71,27 @@ function layerSection(hits: LayerHit[]): string[] {
     if (first.input?.ch !== undefined) out.push(`Input channels: ${first.input.ch}.`);
   } else out.push(`\`${g.className}.forward\` could not be traced, so its feeds are unknown.`);
   return out;
+}
+
+/** For a normalization layer: the per-device batch each training loop feeds the model that owns it. */
+function batchSection(views: Views, hits: LayerHit[], thresholds: Thresholds): string[] {
+  const first = hits[0].layer;
+  if (first.family !== 'batchnorm' && first.family !== 'syncbatchnorm') return [];
+  // the training loop's model is its own instance: match layers by the constructor call that built them
+  const site = first.site;
+  if (!site) return [];
+  const same = (i: { site?: { path: string; call: { span: { start: number } } } }) => i.site?.path === site.path && i.site.call.span.start === site.call.span.start;
+  const out: string[] = [];
+  for (const p of views.training.pairs) {
+    const b = perDeviceBatch(p, thresholds.devicesPerProcess);
+    if (!b?.inst) continue;
+    const named = nameModules(b.inst).find((m) => same(m.inst));
+    if (!named) continue;
+    const per = b.perDevice !== undefined ? `${b.perDevice} sample${b.perDevice === 1 ? '' : 's'} per device` : 'an unknown number of samples per device';
+    const from = b.defaulted ? 'the DataLoader default batch_size 1' : b.origin ? `batch_size ${b.batch} from ${basename(b.origin.path)}:${b.origin.line + 1}${b.origin.what ? ` (${b.origin.what})` : ''}` : `batch_size ${b.batch}`;
+    out.push(`- as \`${shortType(b.inst.type)}.${named.name}\`, trains on ${per} (${from}${b.wrapper === 'ddp' ? ', per DDP process' : b.wrapper === 'dp' ? ', split by nn.DataParallel' : ''}) in the loop at ${basename(p.loop.path)}:${p.loop.span.line + 1}${b.synced ? '; statistics synchronised across processes' : ''}`);
+  }
+  return out.length ? ['Training batches:', ...out] : [];
 }
 
 const inside = (span: { start: number; end: number }, offset: number) => span.start <= offset && offset <= span.end;
@@ -154,6 +175,10 @@ export function hoverMarkdown(
   section(parts, () => {
     const hits = layersAt(views, path, offset);
     return hits.length ? layerSection(hits) : [];
+  }, onError);
+  section(parts, () => {
+    const hits = layersAt(views, path, offset);
+    return hits.length ? batchSection(views, hits, thresholds) : [];
   }, onError);
   section(parts, () => loaderSection(views, path, offset, thresholds), onError);
   section(parts, () => modeSection(views, path, offset), onError);

@@ -169,7 +169,7 @@ export class RegwiseServer {
           if (fresh.some((f) => f.uri === r.uri)) continue;
           this.cellOwner.delete(r.uri);
           // a removed cell keeps no squiggles
-          if (!this.pull) this.conn.sendDiagnostics({ uri: r.uri, diagnostics: [] });
+          this.conn.sendDiagnostics({ uri: r.uri, diagnostics: [] });
         }
         for (const f of fresh) this.cellOwner.set(f.uri, nb);
         for (const closed of cells.structure.didClose ?? []) this.cellOwner.delete(closed.uri);
@@ -194,7 +194,7 @@ export class RegwiseServer {
       this.notebooks.delete(nb.uri);
       for (const cell of nb.cells) {
         this.cellOwner.delete(cell.uri);
-        if (!this.pull) this.conn.sendDiagnostics({ uri: cell.uri, diagnostics: [] });
+        this.conn.sendDiagnostics({ uri: cell.uri, diagnostics: [] });
       }
       this.byPath.delete(nb.path);
       this.results.delete(nb.path);
@@ -558,11 +558,24 @@ export class RegwiseServer {
     for (const d of this.dependentsOf(path)) this.analyse(d);
   }
 
+  /**
+   * Whether the server pushes diagnostics for an open path. Notebooks are always pushed: the VS Code language
+   * client (9.x) pulls only for text documents it opened itself, never for notebook cells, so a pull-only notebook
+   * would show nothing. The pull handler answers cells with an empty report, so no client sees them twice.
+   */
+  private pushes(path: string): boolean {
+    return !this.pull || this.byPath.get(path)?.kind === 'nb';
+  }
+
+  private get pushesAny(): boolean {
+    return !this.pull || this.notebooks.size > 0;
+  }
+
   /** A document changed: everything depending on the workspace is stale; analyse it after the debounce. */
   private changed(path: string): void {
     this.gen++;
     this.wsReport = undefined;
-    if (this.pull) return; // the client asks when it wants diagnostics
+    if (!this.pushesAny) return; // the client asks when it wants diagnostics
     const t = this.timers.get(path);
     if (t) clearTimeout(t);
     this.timers.set(path, setTimeout(() => {
@@ -575,10 +588,8 @@ export class RegwiseServer {
   private workspaceChanged(): void {
     this.gen++;
     this.wsReport = undefined;
-    if (this.pull) {
-      if (this.refreshSupport) this.conn.languages.diagnostics.refresh();
-      return;
-    }
+    if (this.pull && this.refreshSupport) this.conn.languages.diagnostics.refresh();
+    if (!this.pushesAny) return;
     void this.runRound(undefined).catch((err: unknown) => this.logError('analysis round', err));
   }
 
@@ -594,12 +605,18 @@ export class RegwiseServer {
     const cancelled = () => round !== this.round || gen !== this.gen;
     for (const path of order) {
       if (cancelled()) return;
-      if (!this.byPath.has(path)) continue;
-      this.analyseFor(path);
+      if (!this.byPath.has(path) || !this.pushes(path)) continue;
+      this.analyse(path);
+      // the importers one at a time, so a newer edit stops the rest of them
+      for (const d of this.settings.enabled ? this.dependentsOf(path) : []) {
+        await new Promise((r) => setImmediate(r));
+        if (cancelled()) return;
+        this.analyse(d);
+      }
       this.publish(path);
       await new Promise((r) => setImmediate(r));
     }
-    if (!this.scanAll) return;
+    if (!this.scanAll || this.pull) return; // a pulling client asks for the workspace itself
     for (const path of this.engine.ws.files.keys()) {
       if (cancelled()) return;
       if (this.byPath.has(path)) continue;
@@ -657,7 +674,8 @@ export class RegwiseServer {
 
   private async pullDocument(uri: string, previous: string | undefined, token: CancellationToken): Promise<DocumentDiagnosticReport> {
     const nb = this.cellOwner.get(uri);
-    const path = nb ? nb.path : this.pathOf(uri);
+    if (nb) return { kind: DocumentDiagnosticReportKind.Full, resultId: 'pushed', items: [] }; // cells are pushed (see pushes)
+    const path = this.pathOf(uri);
     if (token.isCancellationRequested) throw new ResponseError(LSPErrorCodes.ServerCancelled, 'cancelled', { retriggerRequest: true });
     if (previous === this.resultId() && this.results.get(path)?.gen === this.gen) return { kind: DocumentDiagnosticReportKind.Unchanged, resultId: previous };
     if (!this.engine.ws.get(path)) return { kind: DocumentDiagnosticReportKind.Full, resultId: this.resultId(), items: [] };

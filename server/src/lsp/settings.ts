@@ -11,11 +11,11 @@ export const DEFAULT_SETTINGS: Settings = { enabled: true, scanWorkspaceOnOpen: 
 
 const LEVEL_WORDS: readonly LevelSetting[] = ['off', 'hint', 'info', 'warning', 'error'];
 
-/** Threshold keys as users write them (the same words as the config file) → the engine's fields. */
-export const THRESHOLD_KEYS: Record<string, keyof Thresholds> = {
-  'min-batch-per-device': 'minBatchPerDevice',
-  'devices-per-process': 'devicesPerProcess',
-  'suspicious-drop-rate': 'suspiciousDropRate',
+/** Threshold keys as users write them (the same words and checks as the config file) → the engine's fields. */
+export const THRESHOLD_KEYS: Record<string, { field: keyof Thresholds; what: string; ok: (v: number) => boolean }> = {
+  'min-batch-per-device': { field: 'minBatchPerDevice', what: 'a positive integer', ok: (v) => Number.isInteger(v) && v >= 1 },
+  'devices-per-process': { field: 'devicesPerProcess', what: 'a positive integer', ok: (v) => Number.isInteger(v) && v >= 1 },
+  'suspicious-drop-rate': { field: 'suspiciousDropRate', what: 'a number between 0 and 1', ok: (v) => v > 0 && v < 1 },
 };
 
 export function parseSettings(raw: unknown, knownRules: readonly string[]): { settings: Settings; problems: string[] } {
@@ -37,10 +37,10 @@ export function parseSettings(raw: unknown, knownRules: readonly string[]): { se
   if (r.thresholds && typeof r.thresholds === 'object') {
     const t: Partial<Thresholds> = {};
     for (const [k, v] of Object.entries(r.thresholds as Record<string, unknown>)) {
-      const field = THRESHOLD_KEYS[k];
-      if (!field) problems.push(`regwise.thresholds: unknown key '${k}'`);
-      else if (typeof v !== 'number' || !Number.isFinite(v) || v <= 0) problems.push(`regwise.thresholds.${k} must be a positive number`);
-      else (t as Record<string, number>)[field] = v;
+      const spec = THRESHOLD_KEYS[k];
+      if (!spec) problems.push(`regwise.thresholds: unknown key '${k}'`);
+      else if (typeof v !== 'number' || !spec.ok(v)) problems.push(`regwise.thresholds.${k} must be ${spec.what}`);
+      else (t as Record<string, number>)[spec.field] = v;
     }
     settings.engine.thresholds = t;
   }

@@ -67,6 +67,11 @@ export interface FitEvent {
   /** Span of the method name (`fit_transform`), for fixes. */
   methodSpan?: Span;
   learns: boolean;
+  /**
+   * Parameters of the enclosing function that must be None for the fit to run (`if scaler is None: scaler = ...fit(X)`):
+   * a caller that passes them reuses its own fitted object, so the fit does not happen for that call.
+   */
+  onlyWithout?: string[];
 }
 
 export interface CvUse {
@@ -382,8 +387,14 @@ export class DataView {
     for (const r of sum.returns) {
       const { v, expr } = argFor(r.param);
       if (v?.d !== 'array' || !expr) continue;
+      // a fit guarded by `if param is None` does not run when the caller passes that parameter
+      const runs = r.fits.filter((f) => !f.onlyWithout?.some((p) => {
+        const a = argFor(p).expr;
+        return a !== undefined && a.k !== 'none';
+      }));
+      if (!runs.length) continue;
       // no fix through a call: the edit would land in the helper, which other callers share
-      const fits = r.fits.map((f): FitEvent => ({
+      const fits = runs.map((f): FitEvent => ({
         ...f, id: ids++, rows: v.rows, dataText: this.text(b.path, expr.span, 30), dataName: expr.k === 'name' ? expr.id : v.name,
         receiverName: undefined, methodSpan: undefined, pre: undefined,
       }));
@@ -432,7 +443,18 @@ export class DataView {
       }
       case 'expr': this.ieval(s.value, b); this.dv(s.value, b, out); return;
       case 'return': if (s.value) { this.ieval(s.value, b); b.returns.push(this.dv(s.value, b, out)); } return;
-      case 'if': this.ieval(s.test, b); this.dv(s.test, b, out); this.block(s.body, b, out); this.block(s.orelse, b, out); return;
+      case 'if': {
+        this.ieval(s.test, b);
+        this.dv(s.test, b, out);
+        const guard = noneGuard(s.test, b.params);
+        let before = out.fits.length;
+        this.block(s.body, b, out);
+        if (guard && !guard.negated) for (const f of out.fits.slice(before)) (f.onlyWithout ??= []).push(guard.param);
+        before = out.fits.length;
+        this.block(s.orelse, b, out);
+        if (guard?.negated) for (const f of out.fits.slice(before)) (f.onlyWithout ??= []).push(guard.param);
+        return;
+      }
       case 'while': this.block(s.body, b, out); this.block(s.orelse, b, out); return;
       case 'for': {
         this.ieval(s.iter, b);
@@ -1134,4 +1156,17 @@ export function normalizeConstants(step: TransformStep): { mean: number[]; std: 
   const mean = vec(v.args[0] ?? v.kwargs.get('mean'));
   const std = vec(v.args[1] ?? v.kwargs.get('std'));
   return mean && std ? { mean, std } : undefined;
+}
+
+/**
+ * `if p is None:` / `if not p:` on a parameter `p` (its body runs only without it), or `if p is not None:` (its
+ * else branch does): the idiom of helpers that fit a preprocessor unless the caller hands one in.
+ */
+function noneGuard(test: Expr, params: Map<string, number>): { param: string; negated: boolean } | undefined {
+  if (test.k === 'unary' && test.op === 'not' && test.operand.k === 'name' && params.has(test.operand.id)) return { param: test.operand.id, negated: false };
+  if (test.k !== 'cmp' || test.ops.length !== 1 || (test.ops[0] !== 'is' && test.ops[0] !== 'is not' && test.ops[0] !== '==' && test.ops[0] !== '!=')) return undefined;
+  const [l, r] = test.operands;
+  const name = l.k === 'name' && r.k === 'none' ? l.id : r.k === 'name' && l.k === 'none' ? r.id : undefined;
+  if (name === undefined || !params.has(name)) return undefined;
+  return { param: name, negated: test.ops[0] === 'is not' || test.ops[0] === '!=' };
 }

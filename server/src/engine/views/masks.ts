@@ -221,6 +221,19 @@ class FnFlow {
     return false;
   }
 
+  /** `site` is one term of a sum whose other term is multiplied by the complement `1 - mask`. */
+  private complementMix(site: Expr): boolean {
+    const p = this.parents.get(site);
+    if (p?.k !== 'bin' || p.op !== '+') return false;
+    const other = p.left === site ? p.right : p.left;
+    let hit = false;
+    walkExpr(other, (x) => {
+      if (x.k === 'bin' && x.op === '-' && x.left.k === 'num' && x.left.value === 1 && this.info(x.right)?.mask) hit = true;
+      return !hit;
+    });
+    return hit;
+  }
+
   /** Multiplications of a mask into something that is not a mask, in this body. */
   applications(): { site: Expr | Stmt; span: Span; mask: Expr; rescaled: boolean }[] {
     const out: { site: Expr | Stmt; span: Span; mask: Expr; rescaled: boolean }[] = [];
@@ -232,6 +245,9 @@ class FnFlow {
       // a mask times a parameter or buffer (`self.weight * m`, `v * self.v_bias` in a Bernoulli sampler) is not
       // dropout on activations; precision first
       if (other.k === 'attr' && other.obj.k === 'name') return;
+      // `m * a + (1 - m) * b` picks each unit from a or b (zoneout, masked mixing): nothing is dropped, so nothing
+      // needs the 1/(1-p) rescale
+      if (site.k === 'bin' && this.complementMix(site)) return;
       const rescaled = mi.rescaled || this.divides(other) || (site.k !== 'augassign' && this.rescaledAbove(site as Expr));
       out.push({ site, span, mask, rescaled });
     };

@@ -81,7 +81,15 @@ export interface ModelGraph {
   inits: InitCall[];
   /** The tensor each leaf was last called on in forward (its identity links it to the call that made it). */
   inputTensors?: Map<ModuleInst, Value>;
+  /**
+   * Layers whose output is also used other than as a layer's input: in arithmetic, by a library, tensor-method or
+   * helper call (shape queries aside), or in the value forward returns. A feed `a > b` is then not all `a` does.
+   */
+  sharedOutputs: Set<Layer>;
 }
+
+/** Tensor methods that read only the shape, so using an output this way does not depend on its values. */
+const SHAPE_QUERIES = new Set(['size', 'dim', 'ndimension', 'numel', 'nelement']);
 
 /**
  * Whether argument `index` / keyword `name` of a call is given, and its expression. `maybe` when a `*args` at or
@@ -247,6 +255,7 @@ export class ModelGraphs {
     };
     this.interp.observers.push(observe);
     let traced = false;
+    let returned: Value = UNKNOWN;
     try {
       const fwd = this.interp.classMember(cls, 'forward');
       if (fwd && fwd.value.t === 'func') {
@@ -255,7 +264,7 @@ export class ModelGraphs {
         const args: Value[] = params.map((p, i) => (i === 0 || !p.default ? { t: 'tensor', from: [] } : UNKNOWN));
         // parameters with defaults keep them (bindParams evaluates them)
         try {
-          this.interp.callFunction(fwd.value.fn, v, args.slice(0, params.filter((p) => !p.default).length || 1), new Map(), ff);
+          returned = this.interp.callFunction(fwd.value.fn, v, args.slice(0, params.filter((p) => !p.default).length || 1), new Map(), ff);
           traced = true;
         } catch {
           traced = false;
@@ -283,9 +292,34 @@ export class ModelGraphs {
       const l = byInst.get(inst);
       if (l) l.input = { ch: t.ch, rank: t.rank, from: t.from.map((f) => byInst.get(f)).filter((x): x is Layer => !!x) };
     }
+    const sharedOutputs = new Set<Layer>();
+    const share = (val: Value | undefined, depth = 0): void => {
+      if (!val || depth > 4) return;
+      if (val.t === 'tensor') for (const m of val.from) {
+        const l = byInst.get(m);
+        if (l) sharedOutputs.add(l);
+      }
+      else if (val.t === 'list') for (const x of val.items) share(x, depth + 1);
+      else if (val.t === 'dict') for (const x of val.map.values()) share(x, depth + 1);
+    };
+    for (const m of rec.operands ?? []) {
+      const l = byInst.get(m);
+      if (l) sharedOutputs.add(l);
+    }
+    for (const c of calls) {
+      if (c.callee.t === 'module') continue;
+      if (c.callee.t === 'obj') {
+        const method = c.callee.q.slice(c.callee.q.lastIndexOf('.') + 1);
+        if (SHAPE_QUERIES.has(method)) continue;
+        share(c.callee.state.get('__bound__'));
+      }
+      for (const a of c.args) share(a);
+      for (const a of c.kwargs.values()) share(a);
+    }
+    share(returned);
     const opaque = layers.filter((l) => l.inst.kind === 'opaque' || (l.inst.kind === 'leaf' && !layerSpec(l.type) && l.family === 'other' && !l.type.startsWith('torch.nn.')));
     const inits: InitCall[] = rawInits.map(({ target, ...r }) => ({ ...r, layer: target && byInst.get(target.inst), param: target?.param }));
-    return { cls, path: cls.path, className: cls.name, classSpan: cls.stmt.nameSpan, root, layers, modules, flow, traced, opaque, byInst, calls, inits, inputTensors: rec.inputs };
+    return { cls, path: cls.path, className: cls.name, classSpan: cls.stmt.nameSpan, root, layers, modules, flow, traced, opaque, byInst, calls, inits, inputTensors: rec.inputs, sharedOutputs };
   }
 
   /** Layers fed directly by `l`, and those feeding it. */
