@@ -3,7 +3,7 @@ import { defineRule } from '../server/src/engine/rule';
 import type { Span } from '../server/src/engine/ir';
 import type { TextEdit } from '../server/src/engine/types';
 import { num } from '../server/src/engine/values';
-import { callArg, type ModelGraph } from '../server/src/engine/views/model-graph';
+import { callArg, type ModelGraph, type ModelGraphs } from '../server/src/engine/views/model-graph';
 import { layerLine, onePerSite, replaceExpr, siteKey, type SiteFinding } from './util';
 
 interface Cand extends SiteFinding {
@@ -32,16 +32,7 @@ export default defineRule({
     },
   },
   check(ctx) {
-    // one literal serves every instance built at a site (Block(96) and Block(72)): suggest a divisor of all of them
-    const channelsAt = new Map<string, number[]>();
-    for (const g of ctx.views.models.all()) {
-      for (const l of g.layers) {
-        const ch = num(l.inst.args.get('num_channels'));
-        if (l.family !== 'groupnorm' || !l.site || ch === undefined || !Number.isInteger(ch) || ch <= 0) continue;
-        const k = siteKey(l.site.path, l.site.call);
-        channelsAt.set(k, [...(channelsAt.get(k) ?? []), ch]);
-      }
-    }
+    const channelsAt = channelsBySite(ctx.views.models);
     for (const c of onePerSite(ctx, (g) => candidates(g, channelsAt))) {
       ctx.report({
         messageId: 'indivisible',
@@ -53,6 +44,30 @@ export default defineRule({
     }
   },
 });
+
+const channelsCache = new WeakMap<ModelGraphs, Map<string, number[]>>();
+
+/**
+ * One literal serves every instance built at a site (Block(96) and Block(72)): the channels of all of them, over every
+ * model of the workspace. The same for every checked file, so built once per analysis (per file it was quadratic).
+ */
+function channelsBySite(models: ModelGraphs): Map<string, number[]> {
+  const hit = channelsCache.get(models);
+  if (hit) return hit;
+  const channelsAt = new Map<string, number[]>();
+  for (const g of models.all()) {
+    for (const l of g.layers) {
+      const ch = num(l.inst.args.get('num_channels'));
+      if (l.family !== 'groupnorm' || !l.site || ch === undefined || !Number.isInteger(ch) || ch <= 0) continue;
+      const k = siteKey(l.site.path, l.site.call);
+      const list = channelsAt.get(k);
+      if (list) list.push(ch);
+      else channelsAt.set(k, [ch]);
+    }
+  }
+  channelsCache.set(models, channelsAt);
+  return channelsAt;
+}
 
 /** 32 groups when they divide the channels (the paper's default), else the largest divisor below 32. */
 export function groupsFor(ch: number): number {

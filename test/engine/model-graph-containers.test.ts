@@ -179,7 +179,7 @@ describe('subclasses of containers', () => {
   });
 
   test('nn.ModuleList subclass given a list', async () => {
-    const { layers } = await graph([
+    const { layers, flow } = await graph([
       ...H,
       'class Stack(nn.ModuleList):',
       '    def __init__(self, n):',
@@ -194,6 +194,8 @@ describe('subclasses of containers', () => {
       '        return x',
     ].join('\n'), 'Net');
     expect(layers).toEqual(['stack.0 Linear', 'stack.1 Linear']);
+    // iterating the subclass walks its layers as iterating nn.ModuleList does
+    expect(flow).toEqual(['stack.0>stack.1']);
   });
 });
 
@@ -241,5 +243,18 @@ describe('outputs used besides feeding a layer', () => {
     });
     const g = new Views(e.ws).models.graphsIn('main.py').find((x) => x.className === 'M')!;
     expect([...g.sharedOutputs].map((l) => l.name).sort()).toEqual(['a', 'b', 'bn', 'c']);
+  });
+});
+
+describe('base constructor called by name', () => {
+  test('nn.Sequential.__init__(self, *layers) registers and chains the layers', async () => {
+    const { layers, flow } = await graph([
+      ...H,
+      'class ConvBN(nn.Sequential):',
+      '    def __init__(self):',
+      '        nn.Sequential.__init__(self, nn.Conv2d(3, 8, 3, bias=False), nn.BatchNorm2d(8))',
+    ].join('\n'), 'ConvBN');
+    expect(layers).toEqual(['0 Conv2d', '1 BatchNorm2d']);
+    expect(flow).toEqual(['0>1']);
   });
 });

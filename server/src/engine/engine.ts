@@ -7,6 +7,7 @@ import { formatMessage, type Rule, type RuleContext } from './rule';
 import { notebookSource, isNotebookPath, type SourceFile } from './source';
 import { DEFAULT_THRESHOLDS, type EngineOptions, type Finding, type Level, type Thresholds } from './types';
 import type { Span } from './ir';
+import { LoweredStatements } from './lower';
 
 export const INTERNAL_RULE = 'internal-error';
 
@@ -43,6 +44,8 @@ export class Engine {
   readonly ws = new Workspace();
   private readonly cache: FactsCache;
   private options: EngineOptions = {};
+  /** Per path, the lowered statements of the editor's last version: an edit re-lowers only what it changed. */
+  private readonly lowered = new Map<string, LoweredStatements>();
 
   constructor(readonly parser: PythonParser, readonly rules: readonly Rule[]) {
     this.cache = new FactsCache(parser);
@@ -60,7 +63,12 @@ export class Engine {
   setFile(path: string, raw: string, tree?: Tree): SourceFile {
     let source: SourceFile = { path, text: raw, raw };
     if (isNotebookPath(path)) source = notebookSource(path, raw) ?? { path, text: '', raw };
-    const facts = tree ? extractFacts(this.parser, source.text, tree) : this.cache.get(source.text);
+    let facts: FileFacts;
+    if (tree) {
+      let reuse = this.lowered.get(path);
+      if (!reuse) this.lowered.set(path, (reuse = new LoweredStatements()));
+      facts = extractFacts(this.parser, source.text, tree, reuse);
+    } else facts = this.cache.get(source.text);
     this.ws.addFile(source, facts);
     return source;
   }
@@ -84,6 +92,7 @@ export class Engine {
   }
 
   removeFile(path: string): void {
+    this.lowered.delete(path);
     this.ws.removeFile(path);
   }
 

@@ -1,7 +1,7 @@
 // File facts: one parse and one lowering pass per file, cached by content hash, plus the indexes views ask for.
 import { createHash } from 'node:crypto';
 import type { PythonParser, Tree } from './parser';
-import { lowerModule } from './lower';
+import { lowerModule, type LoweredStatements } from './lower';
 import { dottedName, walkExpr, walkStmts, stmtExprs, type CallExpr, type ClassStmt, type DefStmt, type ModuleIR, type Span } from './ir';
 
 export interface ImportFact {
@@ -49,10 +49,13 @@ export function contentHash(text: string): string {
   return createHash('sha1').update(text).digest('hex');
 }
 
-/** Extracts facts from text (parsing it), or from a given tree (the editor's incremental tree). */
-export function extractFacts(parser: PythonParser, text: string, tree?: Tree): FileFacts {
+/**
+ * Extracts facts from text (parsing it), or from a given tree (the editor's incremental tree); `reuse` holds the
+ * lowered statements of the file's previous version (see LoweredStatements).
+ */
+export function extractFacts(parser: PythonParser, text: string, tree?: Tree, reuse?: LoweredStatements): FileFacts {
   const t = tree ?? parser.parse(text);
-  const ir = lowerModule(t, text);
+  const ir = lowerModule(t, text, reuse);
   const imports: ImportFact[] = [];
   const classes: ClassStmt[] = [];
   const functions: DefStmt[] = [];

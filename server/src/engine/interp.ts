@@ -307,7 +307,7 @@ export class Interp {
           cur.items.push(...rhs.items);
           return;
         }
-        if (cur.t === 'module' && cur.m.kind === 'modulelist' && s.op === '+=' && rhs.t === 'list') {
+        if (cur.t === 'module' && this.containerKind(cur.m) === 'modulelist' && s.op === '+=' && rhs.t === 'list') {
           for (const m of rhs.items) if (m.t === 'module') cur.m.children.push([String(cur.m.children.length), m.m]);
           return;
         }
@@ -442,7 +442,7 @@ export class Interp {
         } else if (obj.t === 'list') {
           const i = num(key);
           if (i !== undefined && Number.isInteger(i) && obj.items[i < 0 ? obj.items.length + i : i]) obj.items[i < 0 ? obj.items.length + i : i] = v;
-        } else if (obj.t === 'module' && obj.m.kind === 'moduledict' && v.t === 'module') {
+        } else if (obj.t === 'module' && this.containerKind(obj.m) === 'moduledict' && v.t === 'module') {
           const k = keyOf(key);
           if (k !== undefined) registerChild(obj.m, k, v.m);
         }
@@ -703,7 +703,7 @@ export class Interp {
       if (isTensor(obj)) return freshTensor(undefined, obj.rank);
       if (!items || lo === undefined || hi === undefined || index.step) return UNKNOWN;
       const sl = items.slice(lo < 0 ? items.length + lo : lo, hi < 0 ? items.length + hi : hi);
-      if (obj.t === 'module' && obj.m.kind === 'sequential') {
+      if (obj.t === 'module' && this.containerKind(obj.m) === 'sequential') {
         const m = newModule('sequential', 'torch.nn.Sequential');
         sl.forEach((x, i) => x.t === 'module' && m.children.push([String(i), x.m]));
         return { t: 'module', m };
@@ -712,7 +712,7 @@ export class Interp {
     }
     const key = this.evalExpr(index, frame);
     if (isTensor(obj)) return freshTensor(undefined, undefined);
-    if (obj.t === 'dict' || (obj.t === 'module' && obj.m.kind === 'moduledict')) {
+    if (obj.t === 'dict' || (obj.t === 'module' && this.containerKind(obj.m) === 'moduledict')) {
       const k = keyOf(key);
       if (k === undefined) return UNKNOWN;
       if (obj.t === 'dict') return obj.map.get(k) ?? UNKNOWN;
@@ -1157,6 +1157,18 @@ export class Interp {
 
   private callExternal(q: string, args: Value[], kwargs: Map<string, Value>, frame: Frame, site?: CallExpr): Value {
     const c = canonical(q);
+    // the base constructor called explicitly, `nn.Sequential.__init__(self, *layers)`, as super().__init__ does
+    if (c.endsWith('.__init__') && args[0]?.t === 'module') {
+      const base = c.slice(0, -'.__init__'.length);
+      if (base === 'torch.nn.Sequential' && this.containerKind(args[0].m) === 'sequential') {
+        fillSequential(args[0].m, args.slice(1));
+        return NONE;
+      }
+      if ((base === 'torch.nn.ModuleList' || base === 'torch.nn.ModuleDict') && this.containerKind(args[0].m) !== undefined) {
+        if (args[1]) fillContainer(args[0].m, args[1], (v) => this.iterate(v));
+        return NONE;
+      }
+    }
     if (c === 'torch.nn.Sequential') {
       const m = newModule('sequential', c);
       fillSequential(m, args);
@@ -1374,10 +1386,13 @@ export class Interp {
       case 'list': return v.items;
       case 'dict': return [...v.map.keys()].map((k) => ({ t: 'str', v: k }));
       case 'str': return [...v.v].map((ch) => ({ t: 'str', v: ch }));
-      case 'module':
-        if (v.m.kind === 'modulelist' || v.m.kind === 'sequential') return v.m.children.map(([, c]) => ({ t: 'module', m: c }));
-        if (v.m.kind === 'moduledict') return v.m.children.map(([n]) => ({ t: 'str', v: n }));
+      case 'module': {
+        // user subclasses of the containers iterate like them (`class Stack(nn.ModuleList)`)
+        const kind = this.containerKind(v.m);
+        if (kind === 'modulelist' || kind === 'sequential') return v.m.children.map(([, c]) => ({ t: 'module', m: c }));
+        if (kind === 'moduledict') return v.m.children.map(([n]) => ({ t: 'str', v: n }));
         return undefined;
+      }
       default: return undefined;
     }
   }

@@ -11,6 +11,15 @@ export function spanOf(n: SyntaxNode): Span {
   return { start: n.startIndex, end: n.endIndex, line: s.row, col: s.column, endLine: e.row, endCol: e.column };
 }
 
+/**
+ * The top-level statements of a file's previous version, keyed by node type and source text, for the editor: an edit
+ * touches one or two of them, the rest are lowered already. A reused statement is a copy with its offsets and lines
+ * shifted, so the IR is exactly what lowering the whole file again would give (test/engine/lower-reuse.test.ts).
+ */
+export class LoweredStatements {
+  entries = new Map<string, { stmt: Stmt; start: number; line: number; truncated: number }>();
+}
+
 class Lowerer {
   truncated = 0;
   readonly syntaxErrors: Span[] = [];
@@ -43,22 +52,59 @@ class Lowerer {
     return { start, end, line, col: start - this.lineStarts[line], endLine, endCol: end - this.lineStarts[endLine] };
   }
 
+  /**
+   * The module's statements, reusing those of `reuse` whose text is unchanged. Only error-free statements that start a
+   * line qualify: their subtree then depends on their own text alone, and every column inside stays the same.
+   */
+  topLevel(root: SyntaxNode, text: string, reuse: LoweredStatements): Stmt[] {
+    const next = new Map<string, { stmt: Stmt; start: number; line: number; truncated: number }>();
+    const out: Stmt[] = [];
+    for (const c of root.namedChildren) {
+      if (!c) continue;
+      const type = c.type;
+      if (type === 'comment') continue;
+      if (type === 'ERROR' || c.startPosition.column !== 0 || c.hasError) {
+        this.item(c, type, 0, out);
+        continue;
+      }
+      const start = c.startIndex;
+      const line = c.startPosition.row;
+      const key = `${type}\0${text.slice(start, c.endIndex)}`;
+      const old = reuse.entries.get(key);
+      let s: Stmt | null;
+      if (old) {
+        s = old.start === start && old.line === line ? old.stmt : (shiftIR(old.stmt, start - old.start, line - old.line) as Stmt);
+        this.truncated += old.truncated;
+        next.set(key, { stmt: s, start, line, truncated: old.truncated });
+      } else {
+        const before = this.truncated;
+        s = this.stmt(c, 1);
+        if (s) next.set(key, { stmt: s, start, line, truncated: this.truncated - before });
+      }
+      if (s) out.push(s);
+    }
+    reuse.entries = next;
+    return out;
+  }
+
   block(n: SyntaxNode | null, depth: number): Stmt[] {
     if (!n) return [];
     const out: Stmt[] = [];
-    for (const c of n.namedChildren) {
-      if (!c) continue;
-      if (c.type === 'comment') continue;
-      if (c.type === 'ERROR') {
-        this.syntaxErrors.push(this.span(c));
-        // statements inside an ERROR node are often intact; keep what can be read
-        out.push(...this.block(c, depth + 1));
-        continue;
-      }
-      const s = this.stmt(c, depth + 1);
-      if (s) out.push(s);
-    }
+    for (const c of n.namedChildren) if (c) this.item(c, c.type, depth, out);
     return out;
+  }
+
+  /** One child of a block (`type` is c.type, read once). */
+  private item(c: SyntaxNode, type: string, depth: number, out: Stmt[]): void {
+    if (type === 'comment') return;
+    if (type === 'ERROR') {
+      this.syntaxErrors.push(this.span(c));
+      // statements inside an ERROR node are often intact; keep what can be read
+      out.push(...this.block(c, depth + 1));
+      return;
+    }
+    const s = this.stmt(c, depth + 1);
+    if (s) out.push(s);
   }
 
   stmt(n: SyntaxNode, depth: number): Stmt | null {
@@ -67,7 +113,6 @@ class Lowerer {
       this.truncated++;
       return { k: 'other', what: 'too-deep', span };
     }
-    if (n.isMissing) this.syntaxErrors.push(span);
     switch (n.type) {
       case 'expression_statement': {
         const c = n.namedChild(0);
@@ -490,10 +535,38 @@ function unescape(s: string): string {
   return s.replace(/\\(n|t|r|\\|'|"|\n)/g, (_, ch: string) => ({ n: '\n', t: '\t', r: '\r', '\\': '\\', "'": "'", '"': '"', '\n': '' } as Record<string, string>)[ch] ?? ch);
 }
 
-/** One pass over the tree; parse errors become `syntaxErrors`, the valid parts are still lowered. */
-export function lowerModule(tree: Tree, text: string = tree.rootNode.text): ModuleIR {
+/** A copy of lowered IR moved by `delta` offsets and `lines` lines (IR is trees of plain objects; only spans move). */
+function shiftIR(node: unknown, delta: number, lines: number): unknown {
+  if (Array.isArray(node)) {
+    const arr = new Array(node.length);
+    for (let i = 0; i < node.length; i++) {
+      const x = node[i];
+      arr[i] = typeof x === 'object' && x !== null ? shiftIR(x, delta, lines) : x;
+    }
+    return arr;
+  }
+  const o = node as Record<string, unknown>;
+  if (typeof o.endCol === 'number') {
+    const sp = o as unknown as Span;
+    return { start: sp.start + delta, end: sp.end + delta, line: sp.line + lines, col: sp.col, endLine: sp.endLine + lines, endCol: sp.endCol };
+  }
+  const copy: Record<string, unknown> = {};
+  // `expr(null)` gives a fixed zero span that does not depend on where the statement is
+  const fixed = o.k === 'unknown' && o.what === 'missing';
+  for (const k in o) {
+    const v = o[k];
+    copy[k] = typeof v !== 'object' || v === null ? v : fixed && k === 'span' ? { ...(v as Span) } : shiftIR(v, delta, lines);
+  }
+  return copy;
+}
+
+/**
+ * One pass over the tree; parse errors become `syntaxErrors`, the valid parts are still lowered. With `reuse` (the
+ * editor's previous version of the file) unchanged top-level statements are copied instead of lowered again.
+ */
+export function lowerModule(tree: Tree, text: string = tree.rootNode.text, reuse?: LoweredStatements): ModuleIR {
   const l = new Lowerer(text);
-  const body = l.block(tree.rootNode, 0);
+  const body = reuse ? l.topLevel(tree.rootNode, text, reuse) : l.block(tree.rootNode, 0);
   return { body, syntaxErrors: collectErrors(tree), truncated: l.truncated };
 }
 
