@@ -4,7 +4,7 @@
 # Idempotent: packages already present are left alone.
 set -euo pipefail
 cd "$(dirname "$0")/.."
-PKGS=(python3-torch python3-sklearn python3-torchvision python3-yaml neovim chromium ripgrep libkrb5-dev)
+PKGS=(python3-torch python3-sklearn python3-torchvision python3-yaml neovim chromium fonts-liberation ripgrep libkrb5-dev)
 missing=()
 for p in "${PKGS[@]}"; do
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")

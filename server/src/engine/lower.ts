@@ -78,7 +78,7 @@ class Lowerer {
         next.set(key, { stmt: s, start, line, truncated: old.truncated });
       } else {
         const before = this.truncated;
-        s = this.stmt(c, 1);
+        s = this.stmt(c, 1, type);
         if (s) next.set(key, { stmt: s, start, line, truncated: this.truncated - before });
       }
       if (s) out.push(s);
@@ -103,22 +103,26 @@ class Lowerer {
       out.push(...this.block(c, depth + 1));
       return;
     }
-    const s = this.stmt(c, depth + 1);
+    const s = this.stmt(c, depth + 1, type);
     if (s) out.push(s);
   }
 
-  stmt(n: SyntaxNode, depth: number): Stmt | null {
+  /** `type` is n.type when the caller read it already (each read is a call into WASM). */
+  stmt(n: SyntaxNode, depth: number, type: string = n.type): Stmt | null {
     const span = this.span(n);
     if (depth > MAX_DEPTH) {
       this.truncated++;
       return { k: 'other', what: 'too-deep', span };
     }
-    switch (n.type) {
+    switch (type) {
       case 'expression_statement': {
-        const c = n.namedChild(0);
+        // one namedChildren read gives the first child and the count (each accessor is a call into WASM)
+        const kids = n.namedChildren;
+        const c = kids[0] ?? null;
         if (!c) return { k: 'other', what: 'empty', span };
-        if (c.type === 'assignment') return this.assignment(c, span, depth);
-        if (c.type === 'augmented_assignment') {
+        const ct = c.type;
+        if (ct === 'assignment') return this.assignment(c, span, depth);
+        if (ct === 'augmented_assignment') {
           return {
             k: 'augassign',
             target: this.expr(c.childForFieldName('left'), depth),
@@ -127,10 +131,10 @@ class Lowerer {
             span,
           };
         }
-        if (n.namedChildCount > 1) {
-          return { k: 'expr', value: { k: 'tuple', items: n.namedChildren.map((x) => this.expr(x, depth)), span }, span };
+        if (kids.length > 1) {
+          return { k: 'expr', value: { k: 'tuple', items: kids.map((x) => this.expr(x, depth)), span }, span };
         }
-        return { k: 'expr', value: this.expr(c, depth), span };
+        return { k: 'expr', value: this.expr(c, depth, ct), span };
       }
       case 'return_statement': {
         const c = n.namedChild(0);
@@ -238,9 +242,11 @@ class Lowerer {
         const bases: Expr[] = [];
         const keywords: Keyword[] = [];
         for (const a of n.childForFieldName('superclasses')?.namedChildren ?? []) {
-          if (!a || a.type === 'comment') continue;
-          if (a.type === 'keyword_argument') keywords.push(this.keyword(a, depth));
-          else bases.push(this.expr(a, depth));
+          if (!a) continue;
+          const at = a.type;
+          if (at === 'comment') continue;
+          if (at === 'keyword_argument') keywords.push(this.keyword(a, depth));
+          else bases.push(this.expr(a, depth, at));
         }
         return {
           k: 'class',
@@ -292,7 +298,7 @@ class Lowerer {
       case 'break_statement': return { k: 'break', span };
       case 'continue_statement': return { k: 'continue', span };
       default:
-        return { k: 'other', what: n.type, span };
+        return { k: 'other', what: type, span };
     }
   }
 
@@ -300,7 +306,8 @@ class Lowerer {
     // a = b = value nests as assignment(left=a, right=assignment(left=b, right=value))
     const targets: Expr[] = [];
     let cur: SyntaxNode | null = c;
-    while (cur && cur.type === 'assignment') {
+    let curType = c.type;
+    while (cur && curType === 'assignment') {
       const left = cur.childForFieldName('left');
       if (left) targets.push(this.expr(left, depth));
       const right: SyntaxNode | null = cur.childForFieldName('right');
@@ -308,10 +315,12 @@ class Lowerer {
         // annotation only (`x: int`): no value
         return { k: 'other', what: 'annotation', span };
       }
-      if (right.type !== 'assignment') {
-        return { k: 'assign', targets, value: this.expr(right, depth), span };
+      const rt = right.type;
+      if (rt !== 'assignment') {
+        return { k: 'assign', targets, value: this.expr(right, depth, rt), span };
       }
       cur = right;
+      curType = rt;
     }
     return { k: 'other', what: 'assignment', span };
   }
@@ -356,7 +365,8 @@ class Lowerer {
     return { name: a.childForFieldName('name')?.text ?? '?', value: this.expr(a.childForFieldName('value'), depth), span: this.span(a) };
   }
 
-  expr(n: SyntaxNode | null, depth: number): Expr {
+  /** `type` is n.type when the caller read it already. */
+  expr(n: SyntaxNode | null, depth: number, type?: string): Expr {
     if (!n) return { k: 'unknown', what: 'missing', span: { start: 0, end: 0, line: 0, col: 0, endLine: 0, endCol: 0 } };
     const span = this.span(n);
     if (depth > MAX_DEPTH) {
@@ -364,7 +374,8 @@ class Lowerer {
       return { k: 'unknown', what: 'too-deep', span };
     }
     const d = depth + 1;
-    switch (n.type) {
+    const t = type ?? n.type;
+    switch (t) {
       case 'identifier': return { k: 'name', id: n.text, span };
       case 'attribute': {
         const attr = n.childForFieldName('attribute');
@@ -375,13 +386,16 @@ class Lowerer {
         const args: Expr[] = [];
         const kwargs: Keyword[] = [];
         const starKwargs: Expr[] = [];
-        if (argNode?.type === 'generator_expression') args.push(this.expr(argNode, d));
+        const argType = argNode?.type;
+        if (argType === 'generator_expression') args.push(this.expr(argNode, d, argType));
         else {
           for (const a of argNode?.namedChildren ?? []) {
-            if (!a || a.type === 'comment') continue;
-            if (a.type === 'keyword_argument') kwargs.push(this.keyword(a, d));
-            else if (a.type === 'dictionary_splat') starKwargs.push(this.expr(a.namedChild(0), d));
-            else args.push(this.expr(a, d));
+            if (!a) continue;
+            const at = a.type;
+            if (at === 'comment') continue;
+            if (at === 'keyword_argument') kwargs.push(this.keyword(a, d));
+            else if (at === 'dictionary_splat') starKwargs.push(this.expr(a.namedChild(0), d));
+            else args.push(this.expr(a, d, at));
           }
         }
         return { k: 'call', fn: this.expr(n.childForFieldName('function'), d), args, kwargs, starKwargs, span, argsSpan: argNode ? this.span(argNode) : span };
@@ -405,12 +419,22 @@ class Lowerer {
         return { k: 'str', value: parts.map((p) => (p.k === 'str' ? p.value : '')).join(''), fstring: parts.some((p) => p.k === 'str' && p.fstring), span };
       }
       case 'parenthesized_expression': {
-        const inner = n.namedChildren.find((c) => c && c.type !== 'comment');
-        return this.expr(inner ?? null, d);
+        for (const c of n.namedChildren) {
+          if (!c) continue;
+          const ct = c.type;
+          if (ct !== 'comment') return this.expr(c, d, ct);
+        }
+        return this.expr(null, d);
       }
       case 'list': case 'tuple': case 'set': case 'expression_list': case 'pattern_list': case 'tuple_pattern': case 'list_pattern': {
-        const k = n.type === 'list' || n.type === 'list_pattern' ? 'list' : n.type === 'set' ? 'set' : 'tuple';
-        return { k, items: n.namedChildren.filter((c) => c && c.type !== 'comment').map((c) => this.expr(c, d)), span };
+        const k = t === 'list' || t === 'list_pattern' ? 'list' : t === 'set' ? 'set' : 'tuple';
+        const items: Expr[] = [];
+        for (const c of n.namedChildren) {
+          if (!c) continue;
+          const ct = c.type;
+          if (ct !== 'comment') items.push(this.expr(c, d, ct));
+        }
+        return { k, items, span };
       }
       case 'dictionary': {
         const entries: { key: Expr | null; value: Expr }[] = [];
@@ -437,11 +461,13 @@ class Lowerer {
         let pendingOp = '';
         for (const c of n.children) {
           if (!c) continue;
-          if (c.isNamed && c.type !== 'comment') {
+          const ct = c.type;
+          const named = c.isNamed;
+          if (named && ct !== 'comment') {
             if (pendingOp) ops.push(pendingOp.trim());
             pendingOp = '';
-            operands.push(this.expr(c, d));
-          } else if (!c.isNamed) pendingOp += ` ${c.type}`;
+            operands.push(this.expr(c, d, ct));
+          } else if (!named) pendingOp += ` ${ct}`;
         }
         return { k: 'cmp', ops, operands, span };
       }
@@ -456,8 +482,9 @@ class Lowerer {
         let slot = 0;
         for (const c of n.children) {
           if (!c) continue;
-          if (c.type === ':') slot++;
-          else if (c.isNamed) parts[slot] = this.expr(c, d);
+          const ct = c.type;
+          if (ct === ':') slot++;
+          else if (c.isNamed) parts[slot] = this.expr(c, d, ct);
         }
         return { k: 'slice', lower: parts[0], upper: parts[1], step: parts[2], span };
       }
@@ -466,7 +493,7 @@ class Lowerer {
       case 'dictionary_splat':
         return { k: 'star', value: this.expr(n.namedChild(0), d), span };
       case 'list_comprehension': case 'generator_expression': case 'set_comprehension': case 'dictionary_comprehension': {
-        const kind = n.type === 'list_comprehension' ? 'list' : n.type === 'set_comprehension' ? 'set' : n.type === 'dictionary_comprehension' ? 'dict' : 'gen';
+        const kind = t === 'list_comprehension' ? 'list' : t === 'set_comprehension' ? 'set' : t === 'dictionary_comprehension' ? 'dict' : 'gen';
         const bodyNode = n.childForFieldName('body');
         let elt: Expr;
         let value: Expr | null = null;
@@ -478,8 +505,9 @@ class Lowerer {
         const ifs: Expr[] = [];
         for (const c of n.namedChildren) {
           if (!c) continue;
-          if (c.type === 'for_in_clause') fors.push({ target: this.expr(c.childForFieldName('left'), d), iter: this.expr(c.childForFieldName('right'), d) });
-          else if (c.type === 'if_clause') ifs.push(this.expr(c.namedChild(0), d));
+          const ct = c.type;
+          if (ct === 'for_in_clause') fors.push({ target: this.expr(c.childForFieldName('left'), d), iter: this.expr(c.childForFieldName('right'), d) });
+          else if (ct === 'if_clause') ifs.push(this.expr(c.namedChild(0), d));
         }
         return { k: 'comp', kind, elt, value, fors, ifs, span };
       }
@@ -501,7 +529,7 @@ class Lowerer {
         this.syntaxErrors.push(span);
         return { k: 'unknown', what: 'error', span };
       default:
-        return { k: 'unknown', what: n.type, span };
+        return { k: 'unknown', what: t, span };
     }
   }
 
@@ -516,10 +544,11 @@ class Lowerer {
     };
     for (const c of n.children) {
       if (!c) continue;
-      if (c.type === 'string_start') fstring = /f/i.test(c.text);
-      else if (c.type === 'string_content') text(unescape(c.text));
-      else if (c.type === 'escape_sequence') text(unescape(c.text));
-      else if (c.type === 'interpolation') {
+      const ct = c.type;
+      if (ct === 'string_start') fstring = /f/i.test(c.text);
+      else if (ct === 'string_content') text(unescape(c.text));
+      else if (ct === 'escape_sequence') text(unescape(c.text));
+      else if (ct === 'interpolation') {
         fstring = true;
         const inner = c.childForFieldName('expression');
         const plain = !!inner && c.children.every((x) => !x || x.type === '{' || x.type === '}' || (x.startIndex === inner.startIndex && x.endIndex === inner.endIndex));
