@@ -1,5 +1,6 @@
 // `npm run bench`: writes a seeded corpus at three sizes, then times parse-only, `scan --jobs 1` and `scan --jobs 2` on each.
 // Usage: node bench/run.mjs [--sizes 100000,250000,500000] [--seed 7] [--timeout 1800] [--reuse] [--cli dist/cli.js]
+// (REGWISE_PARALLEL=rules in the environment measures the opt-in mode that also runs the rules in the workers.)
 import { spawn } from 'node:child_process';
 import * as fs from 'node:fs';
 import * as path from 'node:path';

@@ -16,19 +16,27 @@ export default defineRule({
       'PyTorch autograd notes, "Locally disabling gradient computation" (no_grad and inference_mode do not change the module mode)',
       'PyTorch docs: torch.nn.Module.eval, torch.nn.Dropout, torch.nn.BatchNorm2d',
     ],
+    // one message per kind of layer present: a model with only dropout is not told about batch statistics
     messages: {
       missing:
-        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its layers ({what}) behave as in training: dropout keeps dropping and BatchNorm keeps using and updating batch statistics. Call `{model}.eval()` before the region.',
+        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its layers ({what}) behave as in training: dropout keeps dropping activations, and normalization keeps using the statistics of the evaluated inputs and updating its running statistics. Call `{model}.eval()` before the region.',
+      missingDropout:
+        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its dropout layers ({what}) keep dropping activations, so the outputs are random. Call `{model}.eval()` before the region.',
+      missingNorm:
+        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its normalization layers ({what}) keep using the statistics of the evaluated inputs instead of their running statistics, and keep updating those. Call `{model}.eval()` before the region.',
+      missingLibrary:
+        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: {type} is built with dropout or normalization layers, which behave as in training until `.eval()`. Call `{model}.eval()` before the region.',
     },
   },
   check(ctx) {
     for (const ev of ctx.views.training.evalFindings()) {
       if (ev.region.path !== ctx.path) continue;
       const text = ctx.textOf(ev.region.path);
-      const edit = insertLineBefore(text, ev.insertPath, ev.insertBefore, `${ev.ref.text}.eval()`);
+      const edit = ev.fixable ? insertLineBefore(text, ev.insertPath, ev.insertBefore, `${ev.ref.text}.eval()`) : undefined;
       const via = ev.via.length ? ` (as called from ${lineRef(ev.via[0].path, ev.via[0].span.line)})` : '';
+      const c = ev.caring;
       ctx.report({
-        messageId: 'missing',
+        messageId: !c.seen ? 'missingLibrary' : c.dropout && c.batchStats ? 'missing' : c.dropout ? 'missingDropout' : 'missingNorm',
         data: {
           type: ev.caring.type,
           model: ev.ref.text,

@@ -14,7 +14,7 @@ import { Baseline, BaselineError, baselinePath, writeBaseline } from './baseline
 import { changedSince, GitError } from './git';
 import { fingerprints } from './fingerprint';
 import { applyFixesToFiles } from './fixer';
-import { PARALLEL_RULES_MIN_LINES, analyzeInWorkers, defaultJobs, factsInWorkers, workerScript } from './pool';
+import { analyzeInWorkers, defaultJobs, factsInWorkers, workerScript } from './pool';
 import { Progress } from './progress';
 import { displayPath, jsonReport, summarize, toReportFinding, type Report } from './report';
 import { sarifReport } from './sarif';
@@ -204,10 +204,8 @@ async function scan(args: string[], io: Io): Promise<number> {
   const script = workerScript();
   let workers = 0;
   const lines = sources.reduce((n, s) => n + countLines(s.text), 0);
-  // REGWISE_PARALLEL=facts|rules forces a mode (tests check both give the --jobs 1 report)
-  const parallel = jobs > 1 && script && sources.length > 1
-    ? (env.REGWISE_PARALLEL === 'facts' || env.REGWISE_PARALLEL === 'rules' ? env.REGWISE_PARALLEL : lines >= PARALLEL_RULES_MIN_LINES ? 'rules' : 'facts')
-    : undefined;
+  // workers extract facts; REGWISE_PARALLEL=rules also spreads the rule checks over them (see pool.ts for why opt-in)
+  const parallel = jobs > 1 && script && sources.length > 1 ? (env.REGWISE_PARALLEL === 'rules' ? 'rules' : 'facts') : undefined;
   let findings: Finding[];
   // the main thread's engine: filled now unless workers ran the rules; then only if --fix needs it
   let mainLoaded = true;

@@ -1,4 +1,4 @@
-// `--jobs N`: worker threads extract facts for batches of files; on large scans each also loads the workspace and checks a share.
+// `--jobs N`: worker threads extract facts for batches of files; optionally each also loads the workspace and checks a share.
 import * as fs from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
@@ -113,13 +113,6 @@ class Pool {
 }
 
 /**
- * Above this many lines the rule checks are spread over the workers as well. Each worker then loads the whole workspace
- * and the views build their workspace-wide indexes once per worker: repeated work and memory that pay off only when the
- * per-file checks dominate (measured on the benchmark corpus: slower at 20k lines, about 2x faster at 250k).
- */
-export const PARALLEL_RULES_MIN_LINES = 60_000;
-
-/**
  * Facts of every text, in input order, extracted by up to `jobs` workers; each batch goes to the next idle worker.
  * The facts of text i are extractFacts(text i) whichever worker made them, so the result does not depend on scheduling.
  */
@@ -146,6 +139,11 @@ export async function factsInWorkers(script: string, jobs: number, texts: readon
 }
 
 /**
+ * Opt-in (REGWISE_PARALLEL=rules): the rule checks spread over the workers too. Each worker then holds the whole
+ * workspace and the views build their workspace-wide indexes once per worker, so memory grows with N and the repeated
+ * work eats most of the gain (benchmark on 2 shared cores: 1.39x at 100k lines, 1.18x at 250k, 0.91x at 500k, with
+ * 1.5-2x the peak memory). Not the default until the views' shared work is cheaper than the per-file checks.
+ *
  * Extracts facts in the workers, loads the full workspace into each, and analyses `targets` spread over them: per target
  * path, in the order given, what `engine.analyze([path], views)` returns. Every answer is a pure function of the
  * workspace and the target, so scheduling cannot change the result.

@@ -1,4 +1,4 @@
-// A scanner worker thread: extracts facts for batches of files; on large scans it also loads the whole workspace and checks a share.
+// A scanner worker thread: extracts facts for batches of files; when asked, also loads the whole workspace and checks a share.
 import { parentPort, workerData } from 'node:worker_threads';
 import * as v8 from 'node:v8';
 import { loadPythonParser } from '../engine/parser';

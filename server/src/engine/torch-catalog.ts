@@ -77,44 +77,32 @@ export const CONTAINERS = new Set(['torch.nn.Sequential', 'torch.nn.ModuleList',
 
 /** Module paths that re-export torch.nn's classes under longer names. */
 const ALIASES: [RegExp, string][] = [
+  // (each pattern must start with ALIAS_PREFIX, below)
   // torch.nn.modules.batchnorm.BatchNorm2d and torch.nn.modules.BatchNorm2d are torch.nn.BatchNorm2d;
   // intermediate module paths (torch.nn.modules.batchnorm) stay as they are so attribute chains still resolve
   [/^torch\.nn\.modules\.(?:[a-z_]+\.)?([A-Z]\w*)$/, 'torch.nn.$1'],
 ];
 
-/**
- * Memo for pure string functions of the catalog: the interpreter asks about the same few hundred names millions of
- * times on a large workspace. Bounded, so arbitrary user names cannot grow it without limit.
- */
-function memo<T>(fn: (q: string) => T): (q: string) => T {
-  const cache = new Map<string, T>();
-  return (q) => {
-    let v = cache.get(q);
-    if (v === undefined && !cache.has(q)) {
-      if (cache.size >= 50_000) cache.clear();
-      v = fn(q);
-      cache.set(q, v);
-    }
-    return v as T;
-  };
-}
+/** Every alias pattern starts with this: a plain prefix test rejects most names far faster than the expressions. */
+const ALIAS_PREFIX = 'torch.nn.modules.';
 
-export const canonical: (q: string) => string = memo((q) => {
+export function canonical(q: string): string {
+  if (!q.startsWith(ALIAS_PREFIX)) return q;
   for (const [re, to] of ALIASES) if (re.test(q)) return q.replace(re, to);
   return q;
-});
+}
 
 export function layerSpec(q: string): LayerSpec | undefined {
   return byType.get(canonical(q));
 }
 
 /** Is this a torch.nn class we construct as a layer (known signature or any other capitalised torch.nn name)? */
-export const isTorchLayerClass: (q: string) => boolean = memo((q) => {
+export function isTorchLayerClass(q: string): boolean {
   const c = canonical(q);
   if (byType.has(c)) return true;
   const m = /^torch\.nn\.([A-Z][A-Za-z0-9]*)$/.exec(c);
   return !!m && !CONTAINERS.has(c) && !['Module', 'Parameter', 'ParameterList', 'ParameterDict'].includes(m[1]);
-});
+}
 
 export function familyOf(type: string): Family {
   return byType.get(type)?.family ?? 'other';
@@ -150,7 +138,9 @@ const PRIVATE_BASES: Record<string, ReadonlySet<Family>> = {
 };
 
 /** `torch.nn.batchnorm._BatchNorm` (what `nn.modules.batchnorm._BatchNorm` resolves to step by step) → `torch.nn._BatchNorm`. */
-const classPath = memo((q) => canonical(q).replace(/^torch\.nn\.(?:modules\.)?[a-z_]+\.(?=_?[A-Z])/, 'torch.nn.'));
+function classPath(q: string): string {
+  return canonical(q).replace(/^torch\.nn\.(?:modules\.)?[a-z_]+\.(?=_?[A-Z])/, 'torch.nn.');
+}
 
 /**
  * Whether torch.nn class `type` is `base` or a subclass of it (torch/nn/modules/*.py class statements):

@@ -82,6 +82,11 @@ export interface EvalEvent {
   /** Call sites from the function that had the mode to the region, outermost first. */
   via: Site[];
   quiet: boolean;
+  /**
+   * False when the region exists only on some passes of code shared by all of them
+   * (`torch.set_grad_enabled(phase == "train")`): an `.eval()` inserted before it would also run on the training pass.
+   */
+  fixable: boolean;
 }
 
 export interface TrainPoint {
@@ -209,6 +214,8 @@ const FRAMEWORK_EVAL_HOOKS = new Set([
 const LIGHTNING = new Set(['lightning.LightningModule', 'pytorch_lightning.LightningModule', 'lightning.pytorch.LightningModule', 'pytorch_lightning.core.LightningModule', 'pytorch_lightning.core.module.LightningModule']);
 
 const MAX_SUMMARY_DEPTH = 12;
+/** A loop over a literal list of at most this many constants is walked once per item (`for phase in ["train", "val"]`). */
+const MAX_UNROLL_ITEMS = 8;
 /** Statements one walk may visit (loops are re-walked to a fixed point; nesting multiplies the passes). */
 const MAX_WALK_STEPS = 100_000;
 
@@ -225,9 +232,18 @@ const MODULE_METHODS = new Set([
 /** What dropout/normalization a module value holds, for "does its mode matter" and for messages. */
 export interface Caring {
   cares: boolean;
-  /** e.g. "1 Dropout, 9 BatchNorm2d". */
+  /** e.g. "1 Dropout, 9 BatchNorm2d"; empty when the layers were not seen. */
   what: string;
   type: string;
+  /** Layers seen that drop in training (Dropout family, RNN inter-layer dropout). */
+  dropout: boolean;
+  /** Layers seen that normalize with batch statistics in training and keep running statistics. */
+  batchStats: boolean;
+  /**
+   * False for a library model known to be built with such layers whose layers the view does not build
+   * (`torchvision.models.resnet18()`): messages can say only that it has dropout or normalization.
+   */
+  seen: boolean;
 }
 
 export class TrainingView {
@@ -276,25 +292,31 @@ export class TrainingView {
     const u = unwrap(v);
     if (u.inst) {
       const counts = new Map<string, number>();
-      let cares = false;
+      let dropout = false;
+      let batchStats = false;
       let opaque = false;
       for (const m of descendants(u.inst)) {
         const fam = familyOf(m.type);
         const isBn = BATCH_STAT_FAMILIES.has(fam) || (fam === 'instancenorm' && truthy(m.args.get('track_running_stats')) === true);
         const isDrop = DROPOUT_FAMILIES.has(fam) || (fam === 'rnn' && (num(m.args.get('dropout')) ?? 0) > 0 && (num(m.args.get('num_layers')) ?? 1) > 1);
         if (isBn || isDrop) {
-          cares = true;
           const short = m.type.slice(m.type.lastIndexOf('.') + 1);
           counts.set(short, (counts.get(short) ?? 0) + 1);
         }
-        if (m.kind === 'opaque') opaque = true;
+        dropout ||= isDrop;
+        batchStats ||= isBn;
+        // a part the interpreter could not build, or a container with a registration it could not follow
+        if (m.kind === 'opaque' || m.incomplete) opaque = true;
       }
-      // a part the interpreter could not build may hold dropout: without one found, the answer is unknown
+      const cares = dropout || batchStats;
+      // a part the view cannot see may hold dropout: without one found, the answer is unknown
       if (!cares && opaque) return undefined;
       const what = [...counts].map(([t, n]) => `${n} ${t}`).join(', ');
-      return { cares, what, type: shortType(u.inst.type) };
+      return { cares, what, type: shortType(u.inst.type), dropout, batchStats, seen: true };
     }
-    if (u.ext && isKnownCaringConstructor(u.ext)) return { cares: true, what: 'normalization or dropout layers', type: u.ext.slice(u.ext.lastIndexOf('.') + 1) };
+    if (u.ext && isKnownCaringConstructor(u.ext)) {
+      return { cares: true, what: '', type: u.ext.slice(u.ext.lastIndexOf('.') + 1), dropout: false, batchStats: false, seen: false };
+    }
     return undefined;
   }
 
@@ -318,6 +340,55 @@ export class TrainingView {
 
   summaryOf(fn: FuncInfo, depth: number): Summary | undefined {
     return this.summary(fn, depth + 1);
+  }
+
+  /** Per module-level function: the calls the workspace makes to it, or null when it is also passed as a value. */
+  private callSites: Map<DefStmt, CallExpr[] | null> | undefined;
+
+  /**
+   * Whether parameter `name` of `fn` has its default on every call: the function is called somewhere (`main()` under
+   * `if __name__ == "__main__":`, say), no call passes that parameter, and the function is never handed to something
+   * else that could call it with arguments (`fire.Fire(main)`, `mp.spawn(main, ...)`). Decorated functions and
+   * methods are left out: a decorator (click, Hydra) or a caller through `self` may supply the value.
+   */
+  defaultApplies(fn: FuncInfo, name: string): boolean {
+    if (fn.owner || fn.stmt.decorators.length) return false;
+    const sites = this.sitesOf(fn.stmt);
+    if (!sites?.length) return false;
+    const params = fn.stmt.params;
+    const p = params.find((x) => x.name === name);
+    if (!p || (p.kind !== 'normal' && p.kind !== 'kwonly')) return false;
+    const pos = p.kind === 'normal' ? params.filter((x) => x.kind === 'normal').indexOf(p) : Infinity;
+    return sites.every((c) => !c.args.some((a) => a.k === 'star') && !c.starKwargs.length && c.args.length <= pos && !c.kwargs.some((k) => k.name === name));
+  }
+
+  private sitesOf(fn: DefStmt): CallExpr[] | null | undefined {
+    if (!this.callSites) {
+      const index = new Map<DefStmt, CallExpr[] | null>();
+      for (const [path, f] of this.ws.files) {
+        const frame: Frame = { scope: this.interp.moduleScope(path), path, body: [], done: false, depth: 0 };
+        // only plain and dotted names are resolved (in the file's module scope): evaluating anything else could run code
+        const target = (e: Expr): DefStmt | undefined => {
+          if (e.k !== 'name' && !(e.k === 'attr' && dottedName(e))) return undefined;
+          try {
+            const v = this.interp.evalExpr(e, frame);
+            return v.t === 'func' && !v.fn.owner ? v.fn.stmt : undefined;
+          } catch {
+            return undefined;
+          }
+        };
+        for (const c of f.facts.calls) {
+          const callee = target(c.call.fn);
+          if (callee && index.get(callee) !== null) index.set(callee, [...(index.get(callee) ?? []), c.call]);
+          for (const a of [...c.call.args, ...c.call.kwargs.map((k) => k.value)]) {
+            const passed = target(a.k === 'star' ? a.value : a);
+            if (passed) index.set(passed, null);
+          }
+        }
+      }
+      this.callSites = index;
+    }
+    return this.callSites.get(fn);
   }
 
   private walkModule(path: string): void {
@@ -381,9 +452,27 @@ export function unwrap(v: Value): { inst?: ModuleInst; ext?: string; wrapper?: '
       continue;
     }
     if (cur.q.endsWith('().to') || cur.q.endsWith('().cuda')) return { wrapper, synced };
-    return { ext: cur.q, wrapper, synced };
+    const base = stripPassThrough(cur.q);
+    // `resnet18().eval()` is the resnet18 object itself; a wrapper's result loses what it wrapped
+    if (base !== cur.q && (WRAPPERS.has(base) || base === SYNC_CONVERT || base === 'torch.compile')) return { wrapper, synced };
+    return { ext: base, wrapper, synced };
   }
   return { wrapper, synced };
+}
+
+/**
+ * The interpreter names the result of calling a method on a library object by appending `().method()` to the object's
+ * name (`torchvision.models.resnet18().eval()`); module methods that return the module itself are stripped again.
+ */
+function stripPassThrough(q: string): string {
+  let cur = q;
+  for (let i = 0; i < 8 && cur.endsWith('()'); i++) {
+    const head = cur.slice(0, -2);
+    const dot = head.lastIndexOf('().');
+    if (dot < 0 || !PASS_THROUGH.has(head.slice(dot + 3))) break;
+    cur = head.slice(0, dot);
+  }
+  return cur;
 }
 
 export function descendants(root: ModuleInst): ModuleInst[] {
@@ -425,8 +514,15 @@ class Walker {
   private readonly freezes: Freeze[] = [];
   private readonly forwarded = new Map<string, ModuleRef>();
   private readonly exits: State[] = [];
+  /** Per open loop: the states that leave the body early by `continue` and the loop by `break`. */
+  private readonly jumps: { cont: State[]; brk: State[] }[] = [];
+  /**
+   * Names bound to constants on the current path: targets of loops walked once per literal constant, and names
+   * assigned from expressions that fold under those bindings. Any other binding of a name removes it.
+   */
+  private consts = new Map<string, Value>();
   private regionDepth = 0;
-  private region: { site: Site; insertBefore: Stmt } | undefined;
+  private region: { site: Site; insertBefore: Stmt; fixable: boolean } | undefined;
   private state: State | null = { modes: new Map(), alias: new Map() };
   private record = true;
   private steps = 0;
@@ -443,8 +539,9 @@ class Walker {
       const scope = interp.bindParams(fn, undefined, [], new Map(), base);
       // parameters are what callers pass: unknown here, except values decorators supply (Hydra configs, click)
       this.params = fn.stmt.params.filter((p) => p.kind === 'normal' || p.kind === 'kwonly').map((p) => p.name);
-      // a parameter's own default is only what callers pass when they pass nothing: unknown here
-      for (const p of fn.stmt.params) if (p.default) scope.vars.set(p.name, UNKNOWN);
+      // a parameter's own default is only what callers pass when they pass nothing: unknown here, unless every call
+      // leaves it out (`def main(cfg_path="configs/train.yaml")` run as `main()`)
+      for (const p of fn.stmt.params) if (p.default && !view.defaultApplies(fn, p.name)) scope.vars.set(p.name, UNKNOWN);
       this.frame = { scope, path, body: fn.stmt.body, done: false, depth: 1, cls: fn.owner };
       this.fnName = fn.owner ? `${fn.owner.name}.${fn.stmt.name}` : fn.stmt.name;
       this.quietEvals = view.isLightningHook(fn);
@@ -466,7 +563,7 @@ class Walker {
       const deco = this.fn.stmt.decorators.find((d) => this.isRegionCtx(d));
       if (deco && body.length) {
         const first = body[0].k === 'expr' && body[0].value.k === 'str' && body.length > 1 ? body[1] : body[0];
-        this.region = { site: { path: this.path, span: deco.span }, insertBefore: first };
+        this.region = { site: { path: this.path, span: deco.span }, insertBefore: first, fixable: true };
         this.regionDepth++;
       }
     }
@@ -582,6 +679,11 @@ class Walker {
         this.savedTraining(s);
         const cls = this.classify(s.value);
         this.interpExec(s);
+        // `is_train = phase == "train"`: only values derived from the loop constants are bound (never plain literals,
+        // which a called function could rebind through `global`)
+        const folded = this.readsConst(s.value) ? this.fold(s.value) : undefined;
+        for (const t of s.targets) this.kill(targetNames(t));
+        if (folded && s.targets.length === 1 && s.targets[0].k === 'name') this.consts.set(s.targets[0].id, folded);
         for (const t of s.targets) {
           // `a, b = Net(), Net()`: each name gets its own item
           const v = s.value;
@@ -596,6 +698,7 @@ class Walker {
       case 'augassign':
         this.visit(s.value, s);
         this.interpExec(s);
+        this.kill(targetNames(s.target));
         return;
       case 'return': {
         if (s.value) {
@@ -611,26 +714,35 @@ class Walker {
       }
       case 'if': {
         this.visit(s.test, s);
+        // a test that folds under the constants bound on this path (`phase == "train"` in a loop over phases) takes one branch
+        const taken = truthy(this.fold(s.test));
+        if (taken !== undefined) {
+          this.execBlock(taken ? s.body : s.orelse);
+          return;
+        }
         const before = this.clone(this.state);
+        const consts = new Map(this.consts);
         this.execBlock(s.body);
         const a = this.state;
+        const aConsts = this.consts;
         this.state = before;
+        this.consts = consts;
         this.execBlock(s.orelse);
         this.state = this.joinStates([a, this.state]);
+        for (const [k, v] of this.consts) if (!sameConst(aConsts.get(k), v)) this.consts.delete(k);
         return;
       }
       case 'for': case 'while': {
         if (s.k === 'for') this.visit(s.iter, s);
         if (s.k === 'for') this.parameterLoopFreeze(s);
         else this.visit(s.test, s);
-        if (s.k === 'for') {
-          try {
-            this.view.interp.assign(s.target, UNKNOWN, this.frame);
-          } catch {
-            // ignore
-          }
-        }
-        this.loop(s);
+        const items = s.k === 'for' ? this.constItems(s) : undefined;
+        if (s.k === 'for' && !items) this.bindTarget(s.target, UNKNOWN);
+        this.kill(boundNames(s.body));
+        if (s.k === 'for') this.kill(targetNames(s.target));
+        this.loop(s, items);
+        this.kill(boundNames(s.body));
+        if (s.k === 'for') this.kill(targetNames(s.target));
         return;
       }
       case 'with': {
@@ -639,12 +751,13 @@ class Walker {
           this.visit(it.ctx, s);
           if (this.isRegionCtx(it.ctx)) {
             isRegion = true;
-            if (!this.regionDepth) this.region = { site: { path: this.path, span: it.ctx.span }, insertBefore: s };
+            if (!this.regionDepth) this.region = { site: { path: this.path, span: it.ctx.span }, insertBefore: s, fixable: !this.foldedRegion(it.ctx) };
           }
         }
         let copy = this.withCopies.get(s);
         if (!copy) this.withCopies.set(s, (copy = { ...s, body: [] } as Stmt));
         this.interpExec(copy);
+        for (const it of s.items) if (it.target) this.kill(targetNames(it.target));
         if (isRegion) this.regionDepth++;
         this.execBlock(s.body);
         if (isRegion) {
@@ -654,6 +767,8 @@ class Walker {
         return;
       }
       case 'try': {
+        // a handler may start anywhere in the body: no constant bound in the statement survives it
+        this.kill(boundNames([s]));
         const start = this.clone(this.state);
         this.execBlock(s.body);
         const afterBody = this.state;
@@ -666,46 +781,140 @@ class Walker {
           ends.push(this.state);
         }
         this.state = this.joinStates(ends);
+        this.kill(boundNames([s]));
         this.execBlock(s.finalbody);
         return;
       }
       case 'def': case 'class': case 'import': case 'from':
         this.interpExec(s);
+        this.kill(boundNames([s]));
         return;
+      case 'break': case 'continue': {
+        // the rest of the block is not reached on this path; the loop picks the state up where the jump lands
+        const j = this.jumps[this.jumps.length - 1];
+        if (!j || !this.state) return;
+        (s.k === 'break' ? j.brk : j.cont).push(this.state);
+        this.state = null;
+        return;
+      }
       default:
         return;
     }
   }
 
-  private loop(s: Extract<Stmt, { k: 'for' | 'while' }>): void {
+  private loop(s: Extract<Stmt, { k: 'for' | 'while' }>, items?: Value[]): void {
     this.loops.push(s);
     const info = { fwd: new Map<string, ModuleRef>(), trains: 0 };
     this.loopInfo.push(info);
     const entry = this.clone(this.state);
-    // a loop body runs again: what it sets at its end is the mode at its start on the next pass
-    let cur = this.clone(entry);
-    const wasRecording = this.record;
-    let end: State | null = null;
-    for (let pass = 0; pass < 3; pass++) {
-      this.state = cur;
-      this.record = false;
+    const consts = this.consts;
+    const jumps = { cont: [] as State[], brk: [] as State[] };
+    this.jumps.push(jumps);
+    /** Walks the body once from `from`; the end state joins the paths that continued. */
+    const pass = (from: State | null): State | null => {
+      this.state = from;
+      this.consts = new Map(consts);
+      jumps.cont = [];
       this.execBlock(s.body);
-      end = this.state;
-      const next = this.joinStates([entry, end]);
-      if (this.sameState(next, cur)) break;
-      cur = next;
+      return this.joinStates([this.state, ...jumps.cont]);
+    };
+    let cur = this.clone(entry);
+    let end: State | null = null;
+    let exit: State | null;
+    if (s.k === 'for' && items) {
+      // a loop over literal constants runs its body once per item, in order, with the target bound to that item
+      for (const item of items) {
+        this.bindTarget(s.target, item);
+        consts.set((s.target as Extract<Expr, { k: 'name' }>).id, item);
+        end = pass(end ?? cur);
+        consts.delete((s.target as Extract<Expr, { k: 'name' }>).id);
+      }
+      this.bindTarget(s.target, UNKNOWN);
+      exit = this.joinStates([end, ...jumps.brk]);
+    } else {
+      // a loop body runs again: what it sets at its end is the mode at its start on the next pass
+      const wasRecording = this.record;
+      for (let p = 0; p < 3; p++) {
+        this.record = false;
+        end = pass(cur);
+        const next = this.joinStates([entry, end]);
+        if (this.sameState(next, cur)) break;
+        cur = next;
+      }
+      // the final pass, from the fixed point, records events (the passes before it saw the same breaks)
+      this.record = wasRecording;
+      jumps.brk = [];
+      end = pass(cur);
+      // a loop known to run at least once leaves its end state; otherwise skipping it is a path too
+      exit = this.joinStates(s.k === 'for' && this.nonEmpty(s.iter) ? [end, ...jumps.brk] : [entry, end, ...jumps.brk]);
     }
-    // the final pass, from the fixed point, records events
-    this.record = wasRecording;
-    this.state = cur;
-    this.execBlock(s.body);
-    end = this.state;
-    // a loop known to run at least once leaves its end state; otherwise skipping it is a path too
-    this.state = s.k === 'for' && this.nonEmpty(s.iter) ? end : this.joinStates([entry, end]);
+    this.state = exit;
+    this.consts = consts;
+    this.jumps.pop();
     this.loops.pop();
     this.loopInfo.pop();
     this.execBlock(s.orelse);
     if (s.k === 'for' && info.trains > 0) this.pairLoop(s, info.fwd, cur, end);
+  }
+
+  /** The items of `for NAME in [c1, c2, ...]` when all are constants (a handful at most). */
+  private constItems(s: Extract<Stmt, { k: 'for' }>): Value[] | undefined {
+    const it = s.iter;
+    if (s.target.k !== 'name' || (it.k !== 'list' && it.k !== 'tuple') || !it.items.length || it.items.length > MAX_UNROLL_ITEMS) return undefined;
+    const out: Value[] = [];
+    for (const x of it.items) {
+      const v = x.k === 'str' || x.k === 'num' || x.k === 'bool' || x.k === 'none' || x.k === 'unary' ? this.fold(x) : undefined;
+      if (!v) return undefined;
+      out.push(v);
+    }
+    return out;
+  }
+
+  private bindTarget(t: Expr, v: Value): void {
+    try {
+      this.view.interp.assign(t, v, this.frame);
+    } catch {
+      // a target the interpreter cannot bind stays as it was
+    }
+  }
+
+  private readsConst(e: Expr): boolean {
+    if (!this.consts.size) return false;
+    if (e.k === 'name') return this.consts.has(e.id);
+    return exprChildren(e).some((c) => this.readsConst(c));
+  }
+
+  private kill(names: Iterable<string>): void {
+    for (const n of names) this.consts.delete(n);
+  }
+
+  /**
+   * The constant an expression folds to when its names are only the constants bound on this path (others unknown),
+   * through the interpreter's own folding of comparisons, `and`/`or`/`not` and arithmetic. Expressions that call,
+   * loop or bind are not folded: evaluating them could run user code or change the interpreter's state.
+   */
+  private fold(e: Expr): Value | undefined {
+    const names = new Set<string>();
+    let ok = true;
+    const scan = (x: Expr): void => {
+      if (!ok) return;
+      if (x.k === 'call' || x.k === 'comp' || x.k === 'lambda' || x.k === 'walrus' || x.k === 'unknown' || (x.k === 'str' && x.fstring)) {
+        ok = false;
+        return;
+      }
+      if (x.k === 'name') names.add(x.id);
+      for (const c of exprChildren(x)) scan(c);
+    };
+    scan(e);
+    if (!ok) return undefined;
+    const vars = new Map<string, Value>();
+    for (const n of names) vars.set(n, this.consts.get(n) ?? UNKNOWN);
+    try {
+      const v = this.view.interp.evalExpr(e, { scope: { path: this.path, vars, parent: null }, path: this.path, body: [], done: false, depth: 0 });
+      return v.t === 'str' || v.t === 'num' || v.t === 'bool' || v.t === 'none' ? v : undefined;
+    } catch {
+      return undefined;
+    }
   }
 
   /** `for x, y in loader:` whose body forwards a module and steps: the loader feeds that module's training. */
@@ -749,6 +958,7 @@ class Walker {
     if (e.k === 'lambda') return;
     for (const c of exprChildren(e)) this.visit(c, stmt);
     if (e.k === 'call') this.onCall(e, stmt);
+    if (e.k === 'walrus') this.consts.delete(e.target);
   }
 
   private onCall(c: CallExpr, stmt: Stmt): void {
@@ -809,7 +1019,7 @@ class Walker {
       if (!this.record) return;
       const ev: EvalEvent = {
         ref, mode: this.read(ref.key), region: this.region.site, insertBefore: this.region.insertBefore, insertPath: this.path,
-        fnName: this.fnName, via: [], quiet: this.quietEvals,
+        fnName: this.fnName, via: [], quiet: this.quietEvals, fixable: this.region.fixable,
       };
       this.emitEval(ev);
     } else {
@@ -1118,6 +1328,14 @@ class Walker {
     const k = this.keyOf(e);
     if (k) return { key: k };
     if (e.k !== 'call') return {};
+    // `models.resnet18(...).eval().to(device)`: what the base builds, in the mode the chain's last switch sets
+    let base: Expr = e;
+    while (base.k === 'call' && base.fn.k === 'attr' && PASS_THROUGH.has(base.fn.attr)) base = base.fn.obj;
+    if (base !== e) {
+      const inner = this.classify(base);
+      const sw = this.chainSwitch(e);
+      return inner.key || !sw ? inner : { ...inner, fresh: sw };
+    }
     const callee = this.value(e.fn);
     if (callee.t === 'ext' && (WRAPPERS.has(callee.q) || callee.q === SYNC_CONVERT || callee.q === 'torch.compile')) {
       const a = e.args[0];
@@ -1139,6 +1357,15 @@ class Walker {
     }
     if (this.isConstruction(e)) return { fresh: TRAIN };
     return {};
+  }
+
+  /** The mode the outermost `.eval()` / `.train(...)` of a pass-through chain sets, if it has one. */
+  private chainSwitch(e: Expr): Mode | undefined {
+    for (let cur = e; cur.k === 'call' && cur.fn.k === 'attr' && PASS_THROUGH.has(cur.fn.attr); cur = cur.fn.obj) {
+      const attr = cur.fn.attr;
+      if ((attr === 'eval' || attr === 'train') && this.modeSwitchArgsOk(cur, attr)) return this.switchMode(cur, attr, '');
+    }
+    return undefined;
   }
 
   private isConstruction(e: Expr): boolean {
@@ -1204,10 +1431,18 @@ class Walker {
     if (v.t !== 'ext') return false;
     if (REGION_CTX.has(v.q)) return true;
     if (v.q === 'torch.set_grad_enabled' || v.q === 'torch.autograd.set_grad_enabled') {
-      const a = e.args[0];
-      return !!a && a.k === 'bool' && !a.value;
+      // `torch.set_grad_enabled(phase == "train")` is a region on the passes where the test folds to False
+      const a = e.args[0] ?? e.kwargs.find((k) => k.name === 'mode')?.value;
+      return !!a && truthy(this.fold(a)) === false;
     }
     return false;
+  }
+
+  /** `set_grad_enabled(EXPR)` whose EXPR is not a literal: a region only under this pass's constants. */
+  private foldedRegion(e: Expr): boolean {
+    if (e.k !== 'call') return false;
+    const a = e.args[0] ?? e.kwargs.find((k) => k.name === 'mode')?.value;
+    return !!a && a.k !== 'bool';
   }
 
   private value(e: Expr): Value {
@@ -1239,7 +1474,14 @@ class Walker {
 
 /** Names a function binds in its own body (parameters, assignments, loop and with targets, imports, nested defs). */
 function localNames(fn: DefStmt): Set<string> {
-  const out = new Set(fn.params.map((p) => p.name));
+  const out = boundNames(fn.body);
+  for (const p of fn.params) out.add(p.name);
+  return out;
+}
+
+/** Names the statements bind (assignments, loop and with targets, imports, defs), nested blocks included. */
+function boundNames(stmts: readonly Stmt[]): Set<string> {
+  const out = new Set<string>();
   const add = (t: Expr) => targetNames(t).forEach((n) => out.add(n));
   const visit = (stmts: readonly Stmt[]) => {
     for (const st of stmts) {
@@ -1256,8 +1498,13 @@ function localNames(fn: DefStmt): Set<string> {
       for (const b of stmtBlocks(st)) visit(b);
     }
   };
-  visit(fn.body);
+  visit(stmts);
   return out;
+}
+
+function sameConst(a: Value | undefined, b: Value): boolean {
+  if (!a || a.t !== b.t) return false;
+  return a.t === 'none' || (a as { v: unknown }).v === (b as { v: unknown }).v;
 }
 
 function targetNames(t: Expr): string[] {
