@@ -20,7 +20,7 @@ export default defineRule({
     ],
     messages: {
       unsynced:
-        '{type} is wrapped in DistributedDataParallel with {n} BatchNorm layers and {batch} samples per process: each process normalizes over its own {batch} samples only. Convert with `SyncBatchNorm.convert_sync_batchnorm` before wrapping to use the statistics of the whole global batch.',
+        '{type} is wrapped in DistributedDataParallel with {layers} and {batch} samples per process: each process normalizes over its own {batch} samples only. Convert with `SyncBatchNorm.convert_sync_batchnorm` before wrapping to use the statistics of the whole global batch.',
     },
   },
   check(ctx) {
@@ -43,7 +43,7 @@ export default defineRule({
       const edit = name && ns ? insertLineBefore(ctx.textOf(w.path), w.path, w.stmt, `${name} = ${ns}.SyncBatchNorm.convert_sync_batchnorm(${name})`) : undefined;
       ctx.report({
         messageId: 'unsynced',
-        data: { type: layerShortType(w.inner.type), n, batch },
+        data: { type: layerShortType(w.inner.type), layers: n === 1 ? '1 BatchNorm layer' : `${n} BatchNorm layers`, batch },
         path: w.path,
         span: w.call.span,
         fixes: edit ? [{ title: 'Convert BatchNorm to SyncBatchNorm before wrapping', kind: 'suggested', edits: [edit] }] : [],

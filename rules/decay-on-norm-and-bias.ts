@@ -18,7 +18,7 @@ export default defineRule({
     sources: ['He et al., "Bag of Tricks for Image Classification with Convolutional Neural Networks", CVPR 2019 (no decay on biases and BN parameters)'],
     messages: {
       allParams:
-        'Weight decay {wd}{from} applies to every parameter of {type}, including the scales and shifts of its {n} normalization layers and every bias. Common practice leaves those out: pass parameter groups with weight_decay 0 for biases and norm parameters.',
+        'Weight decay {wd}{from} applies to every parameter of {type}, including the scales and shifts of its {layers} and every bias. Common practice leaves those out: pass parameter groups with weight_decay 0 for biases and norm parameters.',
     },
   },
   check(ctx) {
@@ -41,7 +41,7 @@ export default defineRule({
         : o.weightDecayGiven ? '' : ` (the ${layerShortType(o.type)} default)`;
       ctx.report({
         messageId: 'allParams',
-        data: { wd: pyNumber(wd), from, type: layerShortType(inst.type), n: norms.length },
+        data: { wd: pyNumber(wd), from, type: layerShortType(inst.type), layers: norms.length === 1 ? '1 normalization layer' : `${norms.length} normalization layers` },
         path: o.path,
         span: o.call.span,
       });

@@ -16,7 +16,7 @@ export default defineRule({
     sources: ['PyTorch docs: torch.nn.BatchNorm2d (running statistics are updated in training mode whenever track_running_stats=True, independent of requires_grad)'],
     messages: {
       updating:
-        '`{part}` is frozen here, but it is still in training mode when the model trains ({stepAt}): requires_grad=False stops gradients, not the running statistics of its {n} BatchNorm layers, which keep drifting toward the new data. Call `{part}.eval()` after each `.train()` of the model, or use a frozen BatchNorm.',
+        '`{part}` is frozen here, but it is still in training mode when the model trains ({stepAt}): requires_grad=False stops gradients, not the running statistics of its {layers}, which keep drifting toward the new data. Call `{part}.eval()` after each `.train()` of the model, or use a frozen BatchNorm.',
     },
   },
   check(ctx) {
@@ -30,7 +30,7 @@ export default defineRule({
       seen.add(f.freeze.call);
       ctx.report({
         messageId: 'updating',
-        data: { part: f.freeze.text, stepAt: lineRef(f.point.path, f.point.span.line), n },
+        data: { part: f.freeze.text, stepAt: lineRef(f.point.path, f.point.span.line), layers: n === 1 ? '1 BatchNorm layer' : `${n} BatchNorm layers` },
         path: f.freeze.path,
         span: f.freeze.call.span,
         related: [{ path: f.point.path, span: f.point.span, message: 'trained here with the frozen part in training mode' }],

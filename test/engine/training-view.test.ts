@@ -38,6 +38,38 @@ describe('modes along program order', () => {
   });
 });
 
+describe('loops over constants, folded tests, break and continue', () => {
+  const modesAt = (v: TrainingView, line: number) => v.evals.filter((e) => e.region.span.line === line).map((e) => [e.mode.t, e.mode.e.length]);
+
+  test('`for phase in ("train", "val")` walks each phase with the phase bound; `phase == ...` and a derived local fold', async () => {
+    const v = await view(`def run(loaders, opt):\n    model = Net()\n    for epoch in range(3):\n        for phase in ("train", "val"):\n            is_train = phase == "train"\n            model.train(is_train)\n            for x, y in loaders[phase]:\n                with torch.set_grad_enabled(is_train):\n                    loss = F.cross_entropy(model(x), y)\n                if not is_train:\n                    continue\n                opt.zero_grad()\n                loss.backward()\n                opt.step()\n`);
+    // the region exists on the val pass only, and there the model is in eval (no train path reaches it)
+    expect(modesAt(v, 19)).toEqual([[false, 1]]);
+    expect(v.resumes).toEqual([]);
+  });
+
+  test('a loop over a literal list ends in its last item\'s mode; over more than eight items it is an ordinary loop', async () => {
+    const body = (items: string) => `def run():\n    model = Net()\n    for phase in [${items}]:\n        if phase == "train":\n            model.train()\n        else:\n            model.eval()\n    with torch.no_grad():\n        model(torch.randn(2, 8))\n`;
+    expect(lines(await view(body('"train", "val"')))).toEqual([]);
+    expect(lines(await view(body('"val", "train"')))).toEqual([19]);
+    const nine = ['"train"', ...'abcdefgh'.split('').map((c) => `"${c}"`)].join(', ');
+    expect(modesAt(await view(body(nine)), 19)).toEqual([[true, 1]]);
+  });
+
+  test('`continue` carries the state it leaves to the next pass; `break` to the code after the loop', async () => {
+    const cont = await view(`def run():\n    model = Net()\n    for i in range(3):\n        model.eval()\n        if i > 0:\n            continue\n        model.train()\n    with torch.no_grad():\n        model(torch.randn(2, 8))\n`);
+    expect(modesAt(cont, 19)).toEqual([[true, 1]]);
+    const brk = await view(`def run(n):\n    model = Net()\n    for i in range(n):\n        model.eval()\n        if i == 3:\n            break\n        model.train()\n    with torch.no_grad():\n        model(torch.randn(2, 8))\n`);
+    expect(modesAt(brk, 19)).toEqual([[true, 1]]);
+  });
+
+  test('a name the loop body rebinds is not a constant on the next pass', async () => {
+    // `mode` starts as "val" but the body rebinds it to a value the view cannot fold: the test is not folded
+    const v = await view(`def run(next_mode):\n    model = Net()\n    for phase in ["val"]:\n        mode = phase\n        for step in range(3):\n            if mode == "val":\n                model.eval()\n            mode = next_mode()\n        with torch.no_grad():\n            model(torch.randn(2, 8))\n`);
+    expect(modesAt(v, 20)).toEqual([[true, 1]]);
+  });
+});
+
 describe('containers and unpacking', () => {
   test('`for m in [a, b]: m.eval()` switches each listed module; `a, b = Net(), Net()` binds each', async () => {
     const v = await view(`def run():\n    a, b = Net(), Net()\n    for m in [a, b]:\n        m.eval()\n    with torch.no_grad():\n        a(torch.randn(2, 8))\n        b(torch.randn(2, 8))\n`);

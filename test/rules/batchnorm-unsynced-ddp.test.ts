@@ -13,6 +13,7 @@ test('batchnorm-unsynced-ddp', async () => {
       { name: 'converted before wrapping', code: `${H}def main(ds, rank):\n    net = nn.SyncBatchNorm.convert_sync_batchnorm(make_net())\n    model = DistributedDataParallel(net.to(rank), device_ids=[rank])\n    loader = DataLoader(ds, batch_size=8)\n${LOOP}` },
       { name: 'large per-process batch', code: `${H}def main(ds, rank):\n    model = make_net().to(rank)\n    model = DistributedDataParallel(model, device_ids=[rank])\n    loader = DataLoader(ds, batch_size=64)\n${LOOP}` },
       { name: 'per-process batch not known', code: `${H}def main(ds, rank, bs):\n    model = make_net().to(rank)\n    model = DistributedDataParallel(model, device_ids=[rank])\n    loader = DataLoader(ds, batch_size=bs)\n${LOOP}` },
+      { name: 'timm model under DDP: its layers are not known', code: `import timm\n${H}def main(ds, rank):\n    model = DistributedDataParallel(timm.create_model("resnet50").to(rank), device_ids=[rank])\n    loader = DataLoader(ds, batch_size=4)\n${LOOP}` },
       { name: 'GroupNorm model', code: `${H}def main(ds, rank):\n    model = nn.Sequential(nn.Conv2d(3, 16, 3), nn.GroupNorm(4, 16)).to(rank)\n    model = DistributedDataParallel(model, device_ids=[rank])\n    loader = DataLoader(ds, batch_size=4)\n${LOOP}` },
     ],
     invalid: [
@@ -22,7 +23,7 @@ test('batchnorm-unsynced-ddp', async () => {
         fixKind: 'suggested',
         output: `${H}def main(ds, rank):\n    model = make_net().to(rank)\n    model = torch.nn.SyncBatchNorm.convert_sync_batchnorm(model)\n    model = DistributedDataParallel(model, device_ids=[rank])\n    loader = DataLoader(ds, batch_size=8)\n${LOOP}`,
         verify(found) {
-          if (!found[0].message.includes('1 BatchNorm layers and 8 samples per process')) throw new Error(found[0].message);
+          if (!found[0].message.includes('with 1 BatchNorm layer and 8 samples per process')) throw new Error(found[0].message);
         },
       },
     ],

@@ -15,6 +15,7 @@ test('decay-on-norm-and-bias', async () => {
         code: `${BN}decay = [p for n, p in model.named_parameters() if p.ndim > 1]\nno_decay = [p for n, p in model.named_parameters() if p.ndim <= 1]\nopt = torch.optim.SGD([{"params": decay, "weight_decay": 5e-4}, {"params": no_decay, "weight_decay": 0.0}], lr=0.1)\n`,
       },
       { name: 'model without norm layers', code: `${H}model = nn.Sequential(nn.Linear(8, 8), nn.ReLU(), nn.Linear(8, 2))\nopt = torch.optim.SGD(model.parameters(), lr=0.1, weight_decay=5e-4)\n` },
+      { name: 'timm model: its layers are not known', code: `${H}import timm\nmodel = timm.create_model("resnet50", pretrained=False)\nopt = torch.optim.SGD(model.parameters(), lr=0.1, weight_decay=5e-4)\n` },
       { name: 'no weight decay', code: `${BN}opt = torch.optim.SGD(model.parameters(), lr=0.1, momentum=0.9)\n` },
       { name: 'BatchNorm without affine parameters', code: `${H}model = nn.Sequential(nn.Conv2d(3, 8, 3, bias=False), nn.BatchNorm2d(8, affine=False))\nopt = torch.optim.SGD(model.parameters(), lr=0.1, weight_decay=5e-4)\n` },
     ],
@@ -24,7 +25,7 @@ test('decay-on-norm-and-bias', async () => {
         code: `${BN}opt = torch.optim.SGD(model.parameters(), lr=0.1, weight_decay=5e-4)\n#     ^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^^ decay-on-norm-and-bias:allParams\n`,
         verify(found) {
           const m = found[0].message;
-          if (!m.includes('Weight decay 0.0005 applies') || !m.includes('its 1 normalization layers')) throw new Error(m);
+          if (!m.includes('Weight decay 0.0005 applies') || !m.includes('its 1 normalization layer and every bias')) throw new Error(m);
         },
       },
       {

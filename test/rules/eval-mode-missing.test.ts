@@ -57,7 +57,7 @@ test('eval-mode-missing', async () => {
       },
       {
         name: 'phase loop: the val pass switches to eval before its no_grad region',
-        code: PHASES('torch.no_grad()', '            else:\n                model.eval()\n'),
+        code: `${M}def run(loaders, opt):\n    model = Net()\n    for epoch in range(3):\n        for phase in ["train", "val"]:\n            if phase == "train":\n                model.train()\n            else:\n                model.eval()\n            for x, y in loaders[phase]:\n                if phase == "train":\n                    opt.zero_grad()\n                    model(x).sum().backward()\n                    opt.step()\n                else:\n                    with torch.no_grad():\n                        model(x)\n`,
       },
       {
         name: 'phase loop: set_grad_enabled(phase == "train") is a region only on the val pass, which is in eval',

@@ -141,8 +141,8 @@ export async function factsInWorkers(script: string, jobs: number, texts: readon
 /**
  * Opt-in (REGWISE_PARALLEL=rules): the rule checks spread over the workers too. Each worker then holds the whole
  * workspace and the views build their workspace-wide indexes once per worker, so memory grows with N and the repeated
- * work eats most of the gain (benchmark on 2 shared cores: 1.39x at 100k lines, 1.18x at 250k, 0.91x at 500k, with
- * 1.5-2x the peak memory). Not the default until the views' shared work is cheaper than the per-file checks.
+ * work eats the gain (benchmark on 2 shared cores with the rules of 2026-12-01: 0.83x at 100k lines, 0.68x at 250k,
+ * 0.49x at 500k, with 1.7-1.9x the peak memory). Not the default until the per-file checks outweigh the views' shared work.
  *
  * Extracts facts in the workers, loads the full workspace into each, and analyses `targets` spread over them: per target
  * path, in the order given, what `engine.analyze([path], views)` returns. Every answer is a pure function of the

@@ -13,6 +13,8 @@ import { NONE, UNKNOWN, num, str, truthy, type ClassInfo, type FuncInfo, type Mo
 const MAX_CALL_DEPTH = 16;
 const MAX_UNROLL = 256;
 const MAX_STEPS = 200_000;
+/** Library calls that read a config file the workspace may hold (asked on every library call: built once). */
+const CONFIG_LOADERS = new Set(['yaml.safe_load', 'yaml.load', 'yaml.full_load', 'json.load', 'json.loads', 'tomllib.load', 'tomllib.loads', 'toml.load', 'tomli.load', 'omegaconf.OmegaConf.load']);
 
 /** What forward tracing records for one root model. */
 export interface FlowRecorder {
@@ -1368,8 +1370,7 @@ export class Interp {
 
   /** yaml.safe_load(open(path)), json.load, tomllib.load, OmegaConf.load(path): the workspace file's values. */
   private configLoad(c: string, args: Value[], _kwargs: Map<string, Value>, frame: Frame): Value | undefined {
-    const loaders = new Set(['yaml.safe_load', 'yaml.load', 'yaml.full_load', 'json.load', 'json.loads', 'tomllib.load', 'tomllib.loads', 'toml.load', 'tomli.load', 'omegaconf.OmegaConf.load']);
-    if (!loaders.has(c)) return undefined;
+    if (!CONFIG_LOADERS.has(c)) return undefined;
     const a = args[0];
     let ref: string | undefined;
     if (a?.t === 'obj' && (a.q === 'builtins.open' || a.q === 'text-of')) ref = pathOf(a.args[0] ?? UNKNOWN);

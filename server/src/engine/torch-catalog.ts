@@ -98,6 +98,8 @@ export function layerSpec(q: string): LayerSpec | undefined {
 
 /** Is this a torch.nn class we construct as a layer (known signature or any other capitalised torch.nn name)? */
 export function isTorchLayerClass(q: string): boolean {
+  // every catalogued type and every name the test below accepts is under torch.nn (asked for every library call)
+  if (!q.startsWith('torch.nn.')) return false;
   const c = canonical(q);
   if (byType.has(c)) return true;
   const m = /^torch\.nn\.([A-Z][A-Za-z0-9]*)$/.exec(c);
@@ -121,9 +123,10 @@ export const CHANNEL_PRESERVING_FUNCTIONS = new Set(
   ['relu', 'relu6', 'relu_', 'elu', 'selu', 'gelu', 'silu', 'mish', 'leaky_relu', 'sigmoid', 'tanh', 'hardswish', 'dropout', 'dropout1d', 'dropout2d', 'dropout3d', 'alpha_dropout', 'feature_alpha_dropout', 'max_pool1d', 'max_pool2d', 'max_pool3d', 'avg_pool1d', 'avg_pool2d', 'avg_pool3d', 'adaptive_avg_pool2d', 'adaptive_max_pool2d', 'interpolate'].flatMap((n) => [`torch.nn.functional.${n}`, `torch.${n}`]),
 );
 
-/** Library constructors that build whole networks known to contain normalization or dropout. */
+/** Library constructors that build whole networks known to contain mode-dependent layers (BatchNorm, dropout, stochastic
+ * depth). torchvision ViTs are left out: by default their dropout is 0 and they normalise with LayerNorm. */
 export function isKnownCaringConstructor(q: string): boolean {
-  return /^torchvision\.models\.(resnet|resnext|wide_resnet|vgg\d+_bn|densenet|mobilenet|efficientnet|regnet|convnext|inception|googlenet|shufflenet|mnasnet|squeezenet|alexnet|vit_|swin_|maxvit)/.test(q) ||
+  return /^torchvision\.models\.(resnet|resnext|wide_resnet|vgg\d+_bn|densenet|mobilenet|efficientnet|regnet|convnext|inception|googlenet|shufflenet|mnasnet|squeezenet|alexnet|swin_|maxvit)/.test(q) ||
     /^torchvision\.models\.(segmentation|detection)\./.test(q);
 }
 

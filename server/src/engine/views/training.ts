@@ -47,6 +47,10 @@ function joinMode(a: Mode, b: Mode): Mode {
   return { t: a.t || b.t, n: a.n || b.n, u: a.u || b.u, e };
 }
 
+function originKey(o: EvalOrigin): string {
+  return `${o.report.path}\0${o.report.span.start}\0${o.local.start}`;
+}
+
 function sameOrigin(a: EvalOrigin, b: EvalOrigin): boolean {
   return a.report.path === b.report.path && a.report.span.start === b.report.span.start && a.local.start === b.local.start;
 }
@@ -172,6 +176,11 @@ interface Summary {
   final: Map<string, Mode>;
   evals: EvalEvent[];
   trains: TrainPoint[];
+  /**
+   * Loops here that train a parameter again after an eval() inside them, where only the entry mode was train-or-not
+   * (`train_model(model, ...)` that never calls `model.train()`): a slip when the caller passes a training module.
+   */
+  resumes: TrainResume[];
   pairs: PairRefs[];
   forwards: ModuleRef[];
   /** The function (or a callee) runs a backward() or an optimizer step. */
@@ -271,8 +280,12 @@ export class TrainingView {
     }
   }
 
+  private evalFindingsMemo: { events: number; out: (EvalEvent & { caring: Caring })[] } | undefined;
+
   /** Eval events that end up with a possible train mode on a module whose mode matters. */
   evalFindings(): (EvalEvent & { caring: Caring })[] {
+    // asked once per checked file; the same answer while no event was added (per file it was quadratic)
+    if (this.evalFindingsMemo?.events === this.evals.length) return this.evalFindingsMemo.out;
     const out: (EvalEvent & { caring: Caring })[] = [];
     const seen = new Set<string>();
     for (const ev of this.evals) {
@@ -284,6 +297,7 @@ export class TrainingView {
       seen.add(k);
       out.push({ ...ev, caring });
     }
+    this.evalFindingsMemo = { events: this.evals.length, out };
     return out;
   }
 
@@ -484,7 +498,8 @@ export function descendants(root: ModuleInst): ModuleInst[] {
     if (seen.has(m)) continue;
     seen.add(m);
     out.push(m);
-    for (const [, c] of m.children) stack.push(c);
+    // pre-order in registration order, as named_modules() lists them (messages list layers in that order)
+    for (let i = m.children.length - 1; i >= 0; i--) stack.push(m.children[i][1]);
   }
   return out;
 }
@@ -521,6 +536,11 @@ class Walker {
    * assigned from expressions that fold under those bindings. Any other binding of a name removes it.
    */
   private consts = new Map<string, Value>();
+  /**
+   * Per loop walked once per constant: the eval origins its entry state already held. Such an origin was set on an
+   * earlier pass of an enclosing loop, so that loop, not this one, is the one that trains again.
+   */
+  private readonly unrolledEntry = new Map<Stmt, Set<string>>();
   private regionDepth = 0;
   private region: { site: Site; insertBefore: Stmt; fixable: boolean } | undefined;
   private state: State | null = { modes: new Map(), alias: new Map() };
@@ -554,7 +574,7 @@ class Walker {
     }
     this.paramSet = new Set(this.params);
     if (fn) this.locals = localNames(fn.stmt);
-    this.summaryOut = { fn: fn!, final: new Map(), evals: [], trains: [], pairs: [], forwards: [], steps: false };
+    this.summaryOut = { fn: fn!, final: new Map(), evals: [], trains: [], resumes: [], pairs: [], forwards: [], steps: false };
   }
 
   run(): Summary {
@@ -823,10 +843,16 @@ class Walker {
     let exit: State | null;
     if (s.k === 'for' && items) {
       // a loop over literal constants runs its body once per item, in order, with the target bound to that item
+      const held = new Set<string>();
+      for (const m of entry?.modes.values() ?? []) for (const o of m.e) held.add(originKey(o));
+      this.unrolledEntry.set(s, held);
+      end = cur;
       for (const item of items) {
+        // every path broke out or returned: the later items are not reached
+        if (!end) break;
         this.bindTarget(s.target, item);
         consts.set((s.target as Extract<Expr, { k: 'name' }>).id, item);
-        end = pass(end ?? cur);
+        end = pass(end);
         consts.delete((s.target as Extract<Expr, { k: 'name' }>).id);
       }
       this.bindTarget(s.target, UNKNOWN);
@@ -1051,12 +1077,16 @@ class Walker {
   private onTrainPoint(tp: TrainPoint): void {
     if (!this.record) return;
     // a module set to eval on every path (a frozen teacher, say) is deliberate; the slip is train on one pass, eval on the next
-    if (tp.mode.n && this.isEntry(root(tp.ref.key))) this.summaryOut.trains.push(tp);
-    if (!tp.mode.t) return;
+    const entry = tp.mode.n && this.isEntry(root(tp.ref.key));
+    if (entry) this.summaryOut.trains.push(tp);
+    if (!tp.mode.t && !entry) return;
     for (const o of tp.mode.e) {
-      const loop = [...this.loops].reverse().find((l) => l.span.start <= o.local.start && o.local.end <= l.span.end);
+      const loop = [...this.loops].reverse().find((l) => l.span.start <= o.local.start && o.local.end <= l.span.end && !this.unrolledEntry.get(l)?.has(originKey(o)));
       if (!loop) continue;
-      this.view.resumes.push({ origin: o, point: tp, loop, path: this.path, text: tp.ref.text, fnName: this.fnName });
+      const r: TrainResume = { origin: o, point: tp, loop, path: this.path, text: tp.ref.text, fnName: this.fnName };
+      // train on the first pass only if the caller passed a training module: its callers decide
+      if (tp.mode.t) this.view.resumes.push(r);
+      else this.summaryOut.resumes.push(r);
     }
   }
 
@@ -1171,7 +1201,8 @@ class Walker {
       const sv = this.saved.get(a.id);
       if (sv && sv.key === key) return sv.mode;
     }
-    const v = this.value(a);
+    // `model.train(phase == "train")` on a pass with the phase bound
+    const v = this.fold(a) ?? this.value(a);
     if (v.t === 'bool') return v.v ? TRAIN : evalMode();
     return UNKNOWN_MODE;
   }
@@ -1277,6 +1308,15 @@ class Walker {
       this.onTrainPoint({ ref: { key: m.key, text: m.text, value: m.value }, mode: substMode(tp.mode, this.read(m.key), c.span), local: c.span, report: tp.report, reportText: tp.reportText });
     }
     if (sum.steps) this.stepped();
+    // loops in the callee that resume training after eval(), when the module arrives here in training mode
+    for (const r of sum.resumes) {
+      const m = mapKey(r.point.ref.key);
+      if (!m || !this.record) continue;
+      const mode = substMode(r.point.mode, this.read(m.key), c.span);
+      const point: TrainPoint = { ...r.point, ref: { key: m.key, text: r.point.ref.text, value: m.value }, mode };
+      if (mode.t) this.view.resumes.push({ ...r, point });
+      else if (mode.n && this.isEntry(root(m.key))) this.summaryOut.resumes.push({ ...r, point });
+    }
     // loaders the callee trains a module with
     for (const p of sum.pairs) {
       const mm = mapKey(p.model.key);
@@ -1446,6 +1486,11 @@ class Walker {
   }
 
   private value(e: Expr): Value {
+    // the interpreter ran the assignment once; on this pass of a loop over constants the name holds this pass's value
+    if (e.k === 'name') {
+      const c = this.consts.get(e.id);
+      if (c) return c;
+    }
     try {
       // calls would run the callee in the interpreter: only names, attributes and passes-through are evaluated
       let cur = e;
