@@ -1,6 +1,6 @@
 // eval-mode-missing: a module with dropout or BatchNorm evaluated (no_grad/inference_mode) while it may be in training mode.
 import { defineRule } from '../server/src/engine/rule';
-import { lineRef } from './util';
+import { lineRef, scopeLabel } from './util';
 import { insertLineBefore } from './line-edits';
 
 export default defineRule({
@@ -19,20 +19,24 @@ export default defineRule({
     // one message per kind of layer present: a model with only dropout is not told about batch statistics
     messages: {
       missing:
-        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its layers ({what}) behave as in training: dropout keeps dropping activations, and normalization keeps using the statistics of the evaluated inputs and updating its running statistics. Call `{model}.eval()` before the region.',
+        '{type} `{model}` is evaluated under `{region}` in {fn} but may still be in training mode{via}: its layers ({what}) behave as in training: dropout keeps dropping activations, and normalization keeps using the statistics of the evaluated inputs and updating its running statistics. Call `{model}.eval()` before the region.',
       missingDropout:
-        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its dropout layers ({what}) keep dropping activations, so the outputs are random. Call `{model}.eval()` before the region.',
+        '{type} `{model}` is evaluated under `{region}` in {fn} but may still be in training mode{via}: its dropout layers ({what}) keep dropping activations, so the outputs are random. Call `{model}.eval()` before the region.',
       missingNorm:
-        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: its normalization layers ({what}) keep using the statistics of the evaluated inputs instead of their running statistics, and keep updating those. Call `{model}.eval()` before the region.',
+        '{type} `{model}` is evaluated under `{region}` in {fn} but may still be in training mode{via}: its normalization layers ({what}) keep using the statistics of the evaluated inputs instead of their running statistics, and keep updating those. Call `{model}.eval()` before the region.',
       missingLibrary:
-        '{type} `{model}` is evaluated under `{region}` in {fn}() but may still be in training mode{via}: {type} is built with dropout or normalization layers, which behave as in training until `.eval()`. Call `{model}.eval()` before the region.',
+        '{type} `{model}` is evaluated under `{region}` in {fn} but may still be in training mode{via}: {type} is built with dropout or normalization layers, which behave as in training until `.eval()`. Call `{model}.eval()` before the region.',
     },
   },
   check(ctx) {
     for (const ev of ctx.views.training.evalFindings()) {
       if (ev.region.path !== ctx.path) continue;
       const text = ctx.textOf(ev.region.path);
-      const edit = ev.fixable ? insertLineBefore(text, ev.insertPath, ev.insertBefore, `${ev.ref.text}.eval()`) : undefined;
+      // a bare `model.eval` earlier in the same block has its own fix (add the call), which also ends this finding:
+      // offering both would insert a second, redundant switch
+      const pendingCall = ctx.views.training.bare.some((b) =>
+        b.path === ev.insertPath && b.attr === 'eval' && b.recvText === ev.ref.text && sameBlockBefore(text, b.stmt.span.end, ev.insertBefore, b.stmt.span.col));
+      const edit = ev.fixable && !pendingCall ? insertLineBefore(text, ev.insertPath, ev.insertBefore, `${ev.ref.text}.eval()`) : undefined;
       const via = ev.via.length ? ` (as called from ${lineRef(ev.via[0].path, ev.via[0].span.line)})` : '';
       const c = ev.caring;
       ctx.report({
@@ -41,7 +45,7 @@ export default defineRule({
           type: ev.caring.type,
           model: ev.ref.text,
           region: text.slice(ev.region.span.start, ev.region.span.end),
-          fn: ev.fnName,
+          fn: scopeLabel(ev.fnName),
           via,
           what: ev.caring.what,
         },
@@ -53,3 +57,13 @@ export default defineRule({
     }
   },
 });
+
+/** True when every non-blank line from `from` to `to` is indented at least `col`: still the block `from` is in. */
+function sameBlockBefore(text: string, from: number, to: number, col: number): boolean {
+  if (from > to) return false;
+  for (const line of text.slice(from, to).split('\n').slice(1)) {
+    if (!line.trim() || line.trimStart().startsWith('#')) continue;
+    if (line.length - line.trimStart().length < col) return false;
+  }
+  return true;
+}

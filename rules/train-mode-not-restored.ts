@@ -1,6 +1,6 @@
 // train-mode-not-restored: eval() inside a training loop with no train() before the next backward()/step() on some path.
 import { defineRule } from '../server/src/engine/rule';
-import { lineRef } from './util';
+import { lineRef, scopeLabel } from './util';
 import { insertLineBefore } from './line-edits';
 
 export default defineRule({
@@ -17,15 +17,15 @@ export default defineRule({
     // cannot see gets the conditional wording, and one known to have neither dropout nor BatchNorm no finding
     messages: {
       notRestored:
-        '`{eval}` in {fn}() ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on it learns with its dropout off and its normalization layers using running statistics instead of batch statistics ({what}). Call `{model}.train()` at the top of the loop body.',
+        '`{eval}` in {fn} ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on it learns with its dropout off and its normalization layers using running statistics instead of batch statistics ({what}). Call `{model}.train()` at the top of the loop body.',
       notRestoredDropout:
-        '`{eval}` in {fn}() ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on it learns with its dropout off ({what}). Call `{model}.train()` at the top of the loop body.',
+        '`{eval}` in {fn} ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on it learns with its dropout off ({what}). Call `{model}.train()` at the top of the loop body.',
       notRestoredNorm:
-        '`{eval}` in {fn}() ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on its normalization layers ({what}) use running statistics instead of batch statistics while it learns, and stop updating them. Call `{model}.train()` at the top of the loop body.',
+        '`{eval}` in {fn} ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on its normalization layers ({what}) use running statistics instead of batch statistics while it learns, and stop updating them. Call `{model}.train()` at the top of the loop body.',
       notRestoredLibrary:
-        '`{eval}` in {fn}() ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on the dropout or normalization layers {type} is built with behave as in evaluation while it learns. Call `{model}.train()` at the top of the loop body.',
+        '`{eval}` in {fn} ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on the dropout or normalization layers {type} is built with behave as in evaluation while it learns. Call `{model}.train()` at the top of the loop body.',
       notRestoredUnseen:
-        '`{eval}` in {fn}() ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on it learns in evaluation mode, so any dropout it has is off and any BatchNorm uses running statistics instead of batch statistics. Call `{model}.train()` at the top of the loop body.',
+        '`{eval}` in {fn} ({evalAt}) leaves `{model}` in evaluation mode, and the loop at {loopAt} trains it again at `{step}` ({stepAt}) with no `{model}.train()` in between: from the second pass on it learns in evaluation mode, so any dropout it has is off and any BatchNorm uses running statistics instead of batch statistics. Call `{model}.train()` at the top of the loop body.',
     },
   },
   check(ctx) {
@@ -52,7 +52,7 @@ export default defineRule({
           what: caring?.what ?? '',
           type: caring?.type ?? '',
           eval: r.origin.text,
-          fn: r.origin.fn,
+          fn: scopeLabel(r.origin.fn),
           evalAt: lineRef(r.origin.report.path, r.origin.report.span.line),
           model: r.text,
           loopAt: lineRef(r.path, r.loop.span.line),

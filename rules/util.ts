@@ -122,3 +122,8 @@ export function layerLabel(l: Layer): string {
 export function layerLine(l: Layer): string {
   return l.site ? lineRef(l.site.path, l.site.call.span.line) : 'unknown line';
 }
+
+/** Where code runs, for messages: `evaluate()` for a function, `the top level of train.py` for a script or notebook. */
+export function scopeLabel(fn: string): string {
+  return /\.(py|ipynb)$/i.test(fn) ? `the top level of ${fn}` : `${fn}()`;
+}

@@ -66,12 +66,19 @@ test('eval-mode-missing', async () => {
     ],
     invalid: [
       {
+        name: 'a bare `model.eval` before the region: its own fix (add the call) is the one offered',
+        code: `${M}model = Net()\nmodel.eval\nwith torch.no_grad():\n#    ^^^^^^^^^^^^^^^ eval-mode-missing:missingDropout\n    y = model(torch.randn(2, 8))\n`,
+        verify(found) {
+          expect(found[0].fixes).toEqual([]);
+        },
+      },
+      {
         name: 'fresh module evaluated without eval()',
         code: `${M}model = Net()\nwith torch.no_grad():\n#    ^^^^^^^^^^^^^^^ eval-mode-missing:missingDropout\n    y = model(torch.randn(2, 8))\n`,
         output: `${M}model = Net()\nmodel.eval()\nwith torch.no_grad():\n    y = model(torch.randn(2, 8))\n`,
         verify(found) {
           // dropout only: nothing about batch statistics
-          expect(found[0].message).toBe('Net `model` is evaluated under `torch.no_grad()` in main.py() but may still be in training mode: its dropout layers (1 Dropout) keep dropping activations, so the outputs are random. Call `model.eval()` before the region.');
+          expect(found[0].message).toBe('Net `model` is evaluated under `torch.no_grad()` in the top level of main.py but may still be in training mode: its dropout layers (1 Dropout) keep dropping activations, so the outputs are random. Call `model.eval()` before the region.');
         },
       },
       {
@@ -136,7 +143,7 @@ test('eval-mode-missing', async () => {
         output: `${H}import torchvision\nnet = torchvision.models.resnet18(weights=None)\nnet.eval()\nwith torch.no_grad():\n    logits = net(torch.randn(1, 3, 224, 224))\n`,
         verify(found) {
           // the layers are not built by the view: the message says only what the constructor is known to hold
-          expect(found[0].message).toBe('resnet18 `net` is evaluated under `torch.no_grad()` in main.py() but may still be in training mode: resnet18 is built with dropout or normalization layers, which behave as in training until `.eval()`. Call `net.eval()` before the region.');
+          expect(found[0].message).toBe('resnet18 `net` is evaluated under `torch.no_grad()` in the top level of main.py but may still be in training mode: resnet18 is built with dropout or normalization layers, which behave as in training until `.eval()`. Call `net.eval()` before the region.');
         },
       },
     ],

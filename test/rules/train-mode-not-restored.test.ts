@@ -92,7 +92,7 @@ test('train-mode-not-restored', async () => {
         output: `${M}model = Net()\nopt = torch.optim.SGD(model.parameters(), lr=0.1)\nfor step in range(1000):\n    model.train()\n    x, y = torch.randn(4, 8), torch.zeros(4, dtype=torch.long)\n    opt.zero_grad()\n    F.cross_entropy(model(x), y).backward()\n    opt.step()\n    if step % 100 == 0:\n        model.eval()\n        with torch.no_grad():\n            print(model(x).argmax(1))\n`,
         verify(found) {
           // dropout only: nothing about BatchNorm
-          expect(found[0].message).toBe('`model.eval()` in main.py() (main.py:20) leaves `model` in evaluation mode, and the loop at main.py:14 trains it again at `F.cross_entropy(model(x), y).backward()` (main.py:17) with no `model.train()` in between: from the second pass on it learns with its dropout off (1 Dropout). Call `model.train()` at the top of the loop body.');
+          expect(found[0].message).toBe('`model.eval()` in the top level of main.py (main.py:20) leaves `model` in evaluation mode, and the loop at main.py:14 trains it again at `F.cross_entropy(model(x), y).backward()` (main.py:17) with no `model.train()` in between: from the second pass on it learns with its dropout off (1 Dropout). Call `model.train()` at the top of the loop body.');
         },
       },
     ],
