@@ -223,6 +223,9 @@ try {
   if (!cellText.includes('X_scaled = scaler.fit_transform(X)')) throw new Error(`the squiggle is in the wrong cell:\n${cellText}`);
   const nbEntry = page.locator('.markers-panel .monaco-list-row', { hasText: 'norm-fit-before-split' });
   await nbEntry.first().waitFor();
+  // cell numbers in messages count every cell (markdown too), as the editor's own "Cell N of M" does
+  const nbMessage = normalise(await nbEntry.first().innerText());
+  if (!nbMessage.includes('explore.ipynb cell 3, line 2')) throw new Error(`the notebook message names another cell:\n${nbMessage}`);
   // bring the cell to the middle of the notebook view for the screenshot (the list scrolls itself, not the page)
   await cell.first().locator('.monaco-editor .view-lines').first().click();
   await page.keyboard.press('Escape');

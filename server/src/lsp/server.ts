@@ -248,7 +248,8 @@ export class RegwiseServer {
     return {
       capabilities: {
         textDocumentSync: { openClose: true, change: TextDocumentSyncKind.Incremental, save: false },
-        notebookDocumentSync: { notebookSelector: [{ notebook: { notebookType: 'jupyter-notebook' }, cells: [{ language: 'python' }] }] },
+        // markdown cells are synced too (and analysed as nothing) so cell numbers in messages count every cell, as the editor does
+        notebookDocumentSync: { notebookSelector: [{ notebook: { notebookType: 'jupyter-notebook' }, cells: [{ language: 'python' }, { language: 'markdown' }] }] },
         codeActionProvider: { codeActionKinds: [CodeActionKind.QuickFix, FIX_ALL_KIND] },
         hoverProvider: true,
         ...(this.pull ? { diagnosticProvider: { identifier: 'regwise', interFileDependencies: true, workspaceDiagnostics: true } } : {}),
