@@ -35,7 +35,7 @@ export default defineRule({
       // a bare `model.eval` earlier in the same block has its own fix (add the call), which also ends this finding:
       // offering both would insert a second, redundant switch
       const pendingCall = ctx.views.training.bare.some((b) =>
-        b.path === ev.insertPath && b.attr === 'eval' && b.recvText === ev.ref.text && sameBlockBefore(text, b.stmt.span.end, ev.insertBefore, b.stmt.span.col));
+        b.path === ev.insertPath && b.attr === 'eval' && b.recvText === ev.ref.text && sameBlockBefore(text, b.stmt.span.end, ev.insertBefore.span.start, b.stmt.span.col));
       const edit = ev.fixable && !pendingCall ? insertLineBefore(text, ev.insertPath, ev.insertBefore, `${ev.ref.text}.eval()`) : undefined;
       const via = ev.via.length ? ` (as called from ${lineRef(ev.via[0].path, ev.via[0].span.line)})` : '';
       const c = ev.caring;

@@ -73,6 +73,11 @@ test('eval-mode-missing', async () => {
         },
       },
       {
+        name: 'a bare `model.eval` in another function does not stand in for this fix',
+        code: `${M}def reset(model):\n    model.eval\ndef score(x):\n    model = Net()\n    with torch.no_grad():\n#        ^^^^^^^^^^^^^^^ eval-mode-missing:missingDropout\n        return model(x)\n`,
+        output: `${M}def reset(model):\n    model.eval\ndef score(x):\n    model = Net()\n    model.eval()\n    with torch.no_grad():\n        return model(x)\n`,
+      },
+      {
         name: 'fresh module evaluated without eval()',
         code: `${M}model = Net()\nwith torch.no_grad():\n#    ^^^^^^^^^^^^^^^ eval-mode-missing:missingDropout\n    y = model(torch.randn(2, 8))\n`,
         output: `${M}model = Net()\nmodel.eval()\nwith torch.no_grad():\n    y = model(torch.randn(2, 8))\n`,
