@@ -34,9 +34,8 @@ export default defineRule({
   check(ctx) {
     const min = ctx.thresholds.minBatchPerDevice;
     const devices = ctx.thresholds.devicesPerProcess;
-    for (const p of ctx.views.training.pairs) {
+    for (const p of ctx.views.training.pairsTriggeredIn(ctx.path)) {
       const trigger = p.via[0]?.path ?? p.loop.path;
-      if (trigger !== ctx.path) continue;
       // BatchNorm put in eval on purpose (frozen statistics for small-batch fine-tuning), or a loop in eval only
       if (!p.mode.t || p.partsEval) continue;
       const b = perDeviceBatch(p, devices);

@@ -19,16 +19,20 @@ export class Workspace {
   readonly dataFiles = new Map<string, DataFile>();
   /** Dotted module name → file path; several names can point to one file (script dir, src/ layout, package root). */
   private moduleIndex: Map<string, string> | undefined;
+  /** resolveModule answers by (importing folder, level, module): the interpreters ask again for every import they evaluate. */
+  private readonly resolved = new Map<string, string | undefined>();
 
   addFile(source: SourceFile, facts: FileFacts): void {
     this.files.set(source.path, { source, facts });
     this.moduleIndex = undefined;
+    this.resolved.clear();
   }
 
   removeFile(path: string): void {
     this.files.delete(path);
     this.dataFiles.delete(path);
     this.moduleIndex = undefined;
+    this.resolved.clear();
   }
 
   addDataFile(path: string, text: string): void {
@@ -68,6 +72,16 @@ export class Workspace {
    * importing file's folder first (Python puts a script's folder on sys.path), then any root.
    */
   resolveModule(fromPath: string, module: string, level: number): string | undefined {
+    // the answer depends on the importing file's folder only (and on the set of files, which clears the memo)
+    const dir = posix.dirname(fromPath);
+    const key = `${dir}\0${level}\0${module}`;
+    if (this.resolved.has(key)) return this.resolved.get(key);
+    const found = this.resolveUncached(dir, module, level);
+    this.resolved.set(key, found);
+    return found;
+  }
+
+  private resolveUncached(dir: string, module: string, level: number): string | undefined {
     const files = this.files;
     const tryPath = (dir: string, mod: string): string | undefined => {
       const rel = mod ? mod.split('.').join('/') : '';
@@ -75,7 +89,6 @@ export class Workspace {
       const cands = [`${base}.py`, `${base}/__init__.py`].map((c) => posix.normalize(c));
       return cands.find((c) => files.has(c));
     };
-    const dir = posix.dirname(fromPath);
     if (level > 0) {
       let d = dir;
       for (let i = 1; i < level; i++) d = posix.dirname(d);

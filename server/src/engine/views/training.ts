@@ -280,6 +280,26 @@ export class TrainingView {
     }
   }
 
+  private pairsByTrigger: { count: number; by: Map<string, Pair[]> } | undefined;
+
+  /**
+   * Pairs whose training is triggered from `path`: the file of the first call on the way to the loop, else the loop's
+   * own file; in the order of `pairs`. Indexed once: a filter over every pair for each checked file is quadratic.
+   */
+  pairsTriggeredIn(path: string): Pair[] {
+    if (this.pairsByTrigger?.count !== this.pairs.length) {
+      const by = new Map<string, Pair[]>();
+      for (const p of this.pairs) {
+        const k = p.via[0]?.path ?? p.loop.path;
+        const list = by.get(k);
+        if (list) list.push(p);
+        else by.set(k, [p]);
+      }
+      this.pairsByTrigger = { count: this.pairs.length, by };
+    }
+    return this.pairsByTrigger.by.get(path) ?? [];
+  }
+
   private evalFindingsMemo: { events: number; out: (EvalEvent & { caring: Caring })[] } | undefined;
 
   /** Eval events that end up with a possible train mode on a module whose mode matters. */
