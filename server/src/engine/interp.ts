@@ -1257,8 +1257,8 @@ export class Interp {
         m.args.set(k, v);
         m.given.add(k);
       }
-      for (const p of [...spec.params, ...(spec.keywordOnly ?? [])]) {
-        if (!m.args.has(p.name) && p.default !== undefined) m.args.set(p.name, fromJson(p.default));
+      for (const [name, v] of leafDefaults(spec)) {
+        if (!m.args.has(name)) m.args.set(name, v);
       }
     } else {
       args.forEach((a, i) => m.args.set(String(i), a));
@@ -1403,6 +1403,21 @@ function keyOf(v: Value): string | undefined {
   if (v.t === 'str') return v.v;
   if (v.t === 'num') return String(v.v);
   return undefined;
+}
+
+/**
+ * A layer type's parameter defaults as values, made once per type: every leaf built gets them, and nothing mutates a
+ * scalar value (withWhat copies), so leaves can share them.
+ */
+const defaultsBySpec = new WeakMap<object, [string, Value][]>();
+function leafDefaults(spec: { params: readonly { name: string; default?: number | string | boolean | null }[]; keywordOnly?: readonly { name: string; default?: number | string | boolean | null }[] }): [string, Value][] {
+  let out = defaultsBySpec.get(spec);
+  if (!out) {
+    out = [];
+    for (const p of [...spec.params, ...(spec.keywordOnly ?? [])]) if (p.default !== undefined) out.push([p.name, fromJson(p.default)]);
+    defaultsBySpec.set(spec, out);
+  }
+  return out;
 }
 
 function fromJson(x: number | string | boolean | null): Value {
