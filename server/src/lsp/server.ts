@@ -40,7 +40,7 @@ import { parseSettings, DEFAULT_SETTINGS, type Settings } from './settings';
 import { hoverMarkdown } from './hover';
 
 export const FIX_ALL_KIND = 'source.fixAll.regwise';
-/** Wait this long after the last keystroke before analysing a document (a newer edit restarts the wait). */
+/** An edit this soon after the previous one is part of a burst: wait this long after it (a newer edit restarts the wait). */
 export const DEFAULT_DEBOUNCE_MS = 20;
 /** Files loaded per turn of the event loop while building the workspace model, so requests stay answered. */
 const LOAD_CHUNK = 25;
@@ -68,7 +68,10 @@ export class RegwiseServer {
   private readonly uriByPath = new Map<string, string>();
   private readonly pathByUri = new Map<string, string>();
   private readonly results = new Map<string, Result>();
-  private readonly timers = new Map<string, NodeJS.Timeout>();
+  /** Per path, the cancel function of the analysis scheduled after its last edit. */
+  private readonly timers = new Map<string, () => void>();
+  /** Per path, when its last edit arrived (performance.now()): tells an edit after a pause from one in a burst. */
+  private readonly lastEdit = new Map<string, number>();
   /** Bumped on every change to the workspace model or the settings; results of older generations are stale. */
   private gen = 0;
   private views: { gen: number; views: Views } | undefined;
@@ -226,7 +229,7 @@ export class RegwiseServer {
     c.onRequest('regwise/scanWorkspace', this.guard('scanWorkspace', null, () => this.scanWorkspace()));
     c.onRequest('regwise/rules', () => this.rules.map((r) => ({ id: r.meta.id, title: r.meta.title, level: r.meta.level, summary: r.meta.summary })));
     c.onShutdown(() => {
-      for (const t of this.timers.values()) clearTimeout(t);
+      for (const cancel of this.timers.values()) cancel();
       this.timers.clear();
     });
   }
@@ -475,9 +478,9 @@ export class RegwiseServer {
     doc.dispose();
     this.byPath.delete(doc.path);
     this.results.delete(doc.path);
-    const t = this.timers.get(doc.path);
-    if (t) clearTimeout(t);
+    this.timers.get(doc.path)?.();
     this.timers.delete(doc.path);
+    this.lastEdit.delete(doc.path);
     if (!this.pull && !this.scanAll) this.conn.sendDiagnostics({ uri, diagnostics: [] });
     this.reloadFromDisk(doc.path);
   }
@@ -572,17 +575,40 @@ export class RegwiseServer {
     return !this.pull || this.notebooks.size > 0;
   }
 
-  /** A document changed: everything depending on the workspace is stale; analyse it after the debounce. */
+  /**
+   * A document changed: everything depending on the workspace is stale; analyse it soon. The first edit after a
+   * pause (no edit of this document within the debounce) is analysed as soon as the messages already read are
+   * handled; an edit within the debounce of the previous one is part of a burst and waits out the debounce.
+   */
   private changed(path: string): void {
     this.gen++;
     this.wsReport = undefined;
     if (!this.pushesAny) return; // the client asks when it wants diagnostics
-    const t = this.timers.get(path);
-    if (t) clearTimeout(t);
-    this.timers.set(path, setTimeout(() => {
+    const now = performance.now();
+    const prev = this.lastEdit.get(path);
+    this.lastEdit.set(path, now);
+    const pending = this.timers.get(path);
+    if (pending) pending();
+    const run = () => {
       this.timers.delete(path);
       void this.runRound(path).catch((err: unknown) => this.logError('analysis round', err));
-    }, this.debounceMs));
+    };
+    const idle = !pending && (prev === undefined || now - prev >= this.debounceMs);
+    if (!idle) {
+      const t = setTimeout(run, this.debounceMs);
+      this.timers.set(path, () => clearTimeout(t));
+      return;
+    }
+    // Two turns of setImmediate: the connection handles one queued message per turn and schedules its next turn
+    // after the handler returns, so after two turns every message read with this one (a burst written at once)
+    // has been handled, and a later edit of the burst has cancelled this run and started the debounce.
+    let cancelled = false;
+    setImmediate(() => {
+      if (!cancelled) setImmediate(() => (cancelled ? undefined : run()));
+    });
+    this.timers.set(path, () => {
+      cancelled = true;
+    });
   }
 
   /** A file on disk, the workspace load or the settings changed: re-analyse what is open (and all, when scanning). */
