@@ -1125,7 +1125,7 @@ export class Interp {
 
   private argparseNamespace(parser: Extract<Value, { t: 'obj' }>, frame: Frame): Value {
     const ns = new Map<string, Value>();
-    const body = (parser.state.get('__body__') as unknown as { body: readonly Stmt[] } | undefined)?.body ?? frame.body;
+    const body = parser.body ?? frame.body;
     const path = str(parser.state.get('__path__')) ?? frame.path;
     const scopeFrame: Frame = { ...frame, done: false };
     walkStmts(body, (s) => {
@@ -1235,11 +1235,10 @@ export class Interp {
     if (frame.recorder && isTensor(args[0] ?? UNKNOWN)) return freshTensor();
     if (c.startsWith('torch.') && frame.recorder && /^torch\.(randn|rand|zeros|ones|empty|full|arange|bernoulli|rand_like|randn_like|zeros_like|ones_like)/.test(c)) return freshTensor();
     const state = new Map<string, Value>();
-    if (c === 'argparse.ArgumentParser') {
-      state.set('__body__', { body: frame.body } as unknown as Value);
-      state.set('__path__', { t: 'str', v: frame.path });
-    }
-    return { t: 'obj', q: c, args, kwargs, state, site: site ? { path: frame.path, call: site } : undefined };
+    // a parser remembers the statements it was made in: parse_args() collects the add_argument calls there
+    const isParser = c === 'argparse.ArgumentParser';
+    if (isParser) state.set('__path__', { t: 'str', v: frame.path });
+    return { t: 'obj', q: c, args, kwargs, state, site: site ? { path: frame.path, call: site } : undefined, ...(isParser ? { body: frame.body } : {}) };
   }
 
   makeLeaf(type: string, args: Value[], kwargs: Map<string, Value>, frame: Frame, site?: CallExpr): ModuleInst {

@@ -22,7 +22,6 @@ export class LoweredStatements {
 
 class Lowerer {
   truncated = 0;
-  readonly syntaxErrors: Span[] = [];
   /** Offsets where each line starts: line/column come from offsets in JS, saving two WASM calls per node. */
   private readonly lineStarts: number[];
 
@@ -98,7 +97,6 @@ class Lowerer {
   private item(c: SyntaxNode, type: string, depth: number, out: Stmt[]): void {
     if (type === 'comment') return;
     if (type === 'ERROR') {
-      this.syntaxErrors.push(this.span(c));
       // statements inside an ERROR node are often intact; keep what can be read
       out.push(...this.block(c, depth + 1));
       return;
@@ -526,7 +524,6 @@ class Lowerer {
       case 'keyword_argument':
         return this.expr(n.childForFieldName('value'), d);
       case 'ERROR':
-        this.syntaxErrors.push(span);
         return { k: 'unknown', what: 'error', span };
       default:
         return { k: 'unknown', what: t, span };

@@ -1,5 +1,5 @@
 // Abstract values of the engine's interpreter: constants with their origin, library objects, layers, tensors.
-import type { CallExpr, ClassStmt, DefStmt, Span } from './ir';
+import type { CallExpr, ClassStmt, DefStmt, Span, Stmt } from './ir';
 
 /** Where a constant came from, for messages: `configs/run.yaml:4 (train.batch_size)`. */
 export interface Origin {
@@ -68,7 +68,7 @@ export type Value =
   | { t: 'list'; items: Value[]; tuple: boolean }
   | { t: 'dict'; map: Map<string, Value>; origin?: Origin }
   | { t: 'ext'; q: string }
-  | { t: 'obj'; q: string; args: Value[]; kwargs: Map<string, Value>; site?: { path: string; call: CallExpr }; state: Map<string, Value> }
+  | { t: 'obj'; q: string; args: Value[]; kwargs: Map<string, Value>; site?: { path: string; call: CallExpr }; state: Map<string, Value>; body?: readonly Stmt[] }
   | { t: 'class'; cls: ClassInfo }
   | { t: 'func'; fn: FuncInfo; self?: Value }
   | { t: 'partial'; fn: Value; args: Value[]; kwargs: Map<string, Value> }

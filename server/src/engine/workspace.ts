@@ -48,7 +48,6 @@ export class Workspace {
     if (this.moduleIndex) return this.moduleIndex;
     const idx = new Map<string, string>();
     const paths = [...this.files.keys()].filter((p) => p.endsWith('.py')).sort();
-    const isPackage = (dir: string) => this.files.has(dir === '.' || dir === '' ? '__init__.py' : `${dir}/__init__.py`);
     for (const p of paths) {
       const noExt = p.slice(0, -3);
       const parts = noExt.split('/');
@@ -60,7 +59,6 @@ export class Workspace {
         // prefer the shortest path for a name when two files compete
         if (!idx.has(name)) idx.set(name, p);
       }
-      void isPackage;
     }
     this.moduleIndex = idx;
     return idx;
